@@ -1,0 +1,1 @@
+"""Filter design and streaming for tunetrace: numpy/scipy only, no I/O, no UI."""

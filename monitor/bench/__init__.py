@@ -1,0 +1,11 @@
+"""`tunetrace bench`: each part measures itself against a reference in the same run.
+
+A part is a module `monitor.bench.<name>` with
+    def run(quick: bool) -> dict[str, float | int | str | bool]
+returning flat metrics (names with units, e.g. `pipeline_lines_per_s`, and the
+target checks as booleans, e.g. `ratio_ok`). `quick=True` shrinks the data so
+the test suite can smoke-test the bench; targets are judged on full runs only.
+"""
+
+PARTS: tuple[str, ...] = ("core", "filters", "replay", "binary", "export", "ui", "render")
+DEFAULT_PARTS: tuple[str, ...] = ("core", "filters", "replay", "binary", "export", "ui")

@@ -1,0 +1,1 @@
+"""Recording writer, recording reader, paced player and offline apply for tunetrace."""
