@@ -56,6 +56,10 @@ def main(argv: list[str] | None = None) -> int:
         return exc.exit_code
     except KeyboardInterrupt:
         return 130
+    except BrokenPipeError:
+        # stdout closed early (e.g. piped into `head`): not an error of the user's
+        sys.stderr.close()
+        return 0
 
 
 if __name__ == "__main__":
