@@ -1,0 +1,1 @@
+"""The textual terminal UI: `monitor.tui.app.run_app(pipeline, args)` owns a live session."""

@@ -1,0 +1,86 @@
+"""The channel table: one row per channel with its live statistics."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from textual.widgets import DataTable
+
+COLUMNS: tuple[tuple[str, str], ...] = (
+    ("channel", "channel"), ("unit", "unit"), ("last", "last"), ("mean", "mean"),
+    ("rms_raw", "RMS raw"), ("rms_filtered", "RMS filt"), ("reduction_db", "NR dB"),
+    ("lag_ms", "lag ms"), ("rate_hz", "rate Hz"),
+)
+
+
+@dataclass(frozen=True)
+class ChannelRow:
+    """What the table shows for one channel (NaN: not known yet).
+
+    rms_raw / rms_filtered: RMS of the signal's variation (the mean removed), in the unit.
+    reduction_db: 20 log10(rms_raw / rms_filtered).
+    lag_ms: group delay of the channel's chain at the analysis frequency.
+    """
+
+    name: str
+    unit: str
+    last: float = math.nan
+    mean: float = math.nan
+    rms_raw: float = math.nan
+    rms_filtered: float = math.nan
+    reduction_db: float = math.nan
+    lag_ms: float = math.nan
+    rate_hz: float = math.nan
+
+
+def _number(value: float, digits: int = 5) -> str:
+    if value is None or not math.isfinite(value):
+        return "-"
+    return f"{value:.{digits}g}"
+
+
+def row_cells(row: ChannelRow) -> tuple[str, ...]:
+    """The cell strings of one row, in COLUMNS order."""
+    return (
+        row.name, row.unit or "-", _number(row.last), _number(row.mean),
+        _number(row.rms_raw, 4), _number(row.rms_filtered, 4),
+        "-" if not math.isfinite(row.reduction_db) else f"{row.reduction_db:.1f}",
+        "-" if not math.isfinite(row.lag_ms) else f"{row.lag_ms:.1f}",
+        _number(row.rate_hz, 4),
+    )
+
+
+class ChannelTable(DataTable):
+    """Channels as rows; the highlighted row is the selected channel."""
+
+    DEFAULT_CSS = """
+    ChannelTable { height: auto; max-height: 12; border: round #3a4a5c; }
+    """
+
+    def __init__(self, *, id: str | None = None) -> None:
+        super().__init__(id=id, cursor_type="row", zebra_stripes=True)
+        self._names: tuple[str, ...] = ()
+
+    def on_mount(self) -> None:
+        for key, label in COLUMNS:
+            self.add_column(label, key=key)
+        self.border_title = "channels"
+
+    @property
+    def channel_names(self) -> tuple[str, ...]:
+        return self._names
+
+    def show(self, rows: Sequence[ChannelRow]) -> None:
+        """Add rows for new channels and update every cell of the known ones."""
+        names = tuple(r.name for r in rows)
+        if names != self._names:
+            self.clear()
+            for r in rows:
+                self.add_row(*row_cells(r), key=r.name)
+            self._names = names
+            return
+        for r in rows:
+            for (key, _), cell in zip(COLUMNS, row_cells(r), strict=True):
+                self.update_cell(r.name, key, cell)

@@ -1,0 +1,53 @@
+"""The help screen: every key of the UI, grouped, generated from the key table."""
+
+from __future__ import annotations
+
+from rich.table import Table
+from rich.text import Text
+
+from monitor.tui.dialogs import ShowText
+from monitor.tui.keys import ACTIONS, CHANNEL_KEYS
+
+CAUTION = (
+    "Caution: a filter adds lag and can hide faults. If the filtered signal will feed a "
+    "control loop or a safety decision, validate the chain on the real system and follow "
+    "the applicable standards and local practice."
+)
+
+
+def help_table() -> Table:
+    """A rich table of every key, in groups, plus the keys textual itself provides."""
+    table = Table(show_header=False, box=None, padding=(0, 1))
+    table.add_column("key", style="bold #ffb347", no_wrap=True)
+    table.add_column("what it does")
+    group = None
+    for action in ACTIONS:
+        if action.group != group:
+            group = action.group
+            table.add_row("", "")
+            table.add_row("", Text(group, style="bold underline"))
+        keys = " ".join(_label(k) for k in action.keys.split(","))
+        table.add_row(keys, action.help)
+    table.add_row("", "")
+    table.add_row("", Text("Moving around", style="bold underline"))
+    table.add_row(f"{CHANNEL_KEYS[0]}..{CHANNEL_KEYS[-1]}", "Select channel 1 to 9.")
+    table.add_row("up down", "Move in the channel table or the stage list.")
+    table.add_row("tab", "Next panel or field; shift+tab goes back.")
+    table.add_row("enter", "In a parameter field: apply the change to the running chain.")
+    table.add_row("ctrl+p", "Command palette: every action above by name.")
+    table.add_row("", "")
+    table.add_row("", Text(CAUTION, style="italic #e0c060"))
+    return table
+
+
+def _label(key: str) -> str:
+    from monitor.tui.keys import KEY_LABELS
+
+    return KEY_LABELS.get(key, key)
+
+
+class HelpScreen(ShowText):
+    """Every key, grouped; esc closes."""
+
+    def __init__(self) -> None:
+        super().__init__("Keys of the tunetrace terminal", help_table())

@@ -1,0 +1,122 @@
+"""The two status lines: source and link health, then recording and UI state."""
+
+from __future__ import annotations
+
+import os
+import time
+from dataclasses import dataclass, field
+from typing import Any
+
+from textual.widgets import Static
+
+STATE_STYLES = {
+    "connected": "bold #7fd18b", "connecting": "#e0c060", "reconnecting": "bold #f0a040",
+    "ended": "bold #c07070",
+}
+
+
+@dataclass
+class UiState:
+    """What the UI adds to the pipeline's status line.
+
+    notice:  one-shot sentence (the latest message), or "".
+    held / frozen: view hold and trace freeze flags.
+    window_s: trace time window in seconds.
+    analysis_hz: frequency at which lag is reported.
+    scope: "channel" or "shared" (how chain edits apply).
+    recording_started: monotonic time when the current recording started.
+    """
+
+    notice: str = ""
+    held: bool = False
+    frozen: bool = False
+    window_s: float = 5.0
+    analysis_hz: float = 1.0
+    scope: str = "channel"
+    recording_started: float | None = None
+    sticky: list[str] = field(default_factory=list)
+
+
+def human_size(n_bytes: int) -> str:
+    """1536 -> '1.5 kB' (decimal units, as file managers on Linux show them)."""
+    size = float(n_bytes)
+    for unit in ("B", "kB", "MB", "GB"):
+        if size < 1000 or unit == "GB":
+            return f"{size:.0f} {unit}" if unit == "B" else f"{size:.1f} {unit}"
+        size /= 1000
+    return f"{size:.1f} GB"
+
+
+def format_duration(seconds: float) -> str:
+    """75.2 -> '1:15'; 3725 -> '1:02:05'."""
+    s = int(max(seconds, 0))
+    h, rest = divmod(s, 3600)
+    m, s = divmod(rest, 60)
+    return f"{h}:{m:02d}:{s:02d}" if h else f"{m}:{s:02d}"
+
+
+def recording_text(status: Any, ui: UiState, now: float | None = None) -> str:
+    """'REC weigh-....csv 0:12 48.1 kB', 'not recording', or the recording error."""
+    if status.recording:
+        try:
+            size = human_size(os.path.getsize(status.recording))
+        except OSError:
+            size = "?"
+        started = ui.recording_started
+        took = format_duration((now or time.monotonic()) - started) if started else "?"
+        return f"REC {os.path.basename(str(status.recording))} {took} {size}"
+    if status.recording_error:
+        return f"recording stopped: {status.recording_error}"
+    return "not recording"
+
+
+def status_lines(status: Any, ui: UiState) -> tuple[str, str]:
+    """Plain text of the two lines (markup-free; tests and the tmux check read these)."""
+    if status is None:
+        return "starting...", ui.notice
+    rate = (f"{status.rate_hz:.4g} Hz ({status.rate_origin})" if status.rate_hz
+            else "rate unknown yet")
+    line1 = (f"{status.source_description}  {status.source_state}  {rate}  "
+             f"frames {status.frames}  bad {status.bad}  dropped {status.dropped}")
+    if getattr(status, "ring_overflow", 0):
+        line1 += f"  overflow {status.ring_overflow}"
+    if status.paused:
+        line1 += "  PAUSED"
+    flags = []
+    if ui.held:
+        flags.append("VIEW HELD")
+    if ui.frozen:
+        flags.append("TRACE FROZEN")
+    flags.append("edits: this channel" if ui.scope == "channel" else "edits: all sharing")
+    parts = [recording_text(status, ui), *flags]
+    if status.chain_error:
+        parts.append(f"chain: {status.chain_error}")
+    parts += ui.sticky
+    if ui.notice:
+        parts.append(ui.notice)
+    return line1, "  |  ".join(parts)
+
+
+class StatusBar(Static):
+    """Two lines under the panels; `show(status, ui)` redraws them."""
+
+    DEFAULT_CSS = """
+    StatusBar { height: 2; background: #1c2430; color: #c8d0da; padding: 0 1; }
+    """
+
+    def show(self, status: Any, ui: UiState) -> None:
+        from rich.text import Text
+
+        line1, line2 = status_lines(status, ui)
+        text = Text()
+        state = status.source_state if status is not None else ""
+        if state and state in line1:
+            head, _, tail = line1.partition(f"  {state}  ")
+            text.append(head + "  ")
+            text.append(state, style=STATE_STYLES.get(state, ""))
+            text.append("  " + tail)
+        else:
+            text.append(line1)
+        text.append("\n")
+        text.append(line2, style="bold #ff8080" if line2.startswith("REC") else "")
+        self.update(text)
