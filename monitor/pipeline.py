@@ -1,0 +1,529 @@
+"""The reader thread: source -> framer -> decoder -> chain -> ring -> recorder.
+
+One thread per source owns the framer, decoder, chain, ring writes and the
+sink; it never waits on a reader. Other threads talk to it only through a
+bounded command queue, applied between blocks (so a chain is never half
+replaced), and read its results through `ring.latest(n)` and `status()`.
+
+Pause on a live source keeps reading, filtering and recording (the device
+must be drained and the filter state stay continuous) but stops writing the
+ring, so the view holds still. A source with pause()/resume() (replay) is
+paused itself instead. Seek and SetSpeed go to sources that offer seek(s) and
+set_speed(x).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import queue
+import threading
+import time
+from dataclasses import dataclass
+from typing import Any, Protocol
+
+import numpy as np
+
+from filters.chainset import ChainSet
+from filters.spec import ChainSpec
+from monitor.block import Block, Schema
+from monitor.counters import BadFrames
+from monitor.decoding import ArrivalRate, TextDecoder
+from monitor.ring import DEFAULT_RING_CAPACITY, Ring
+
+READ_TIMEOUT_S = 0.05          # bounds how long stop() and commands wait
+COMMAND_QUEUE_SIZE = 64
+RATE_WAIT_NOTE = ("filtered = raw until the sample rate is known: estimating it from "
+                  "arrival times (give --rate HZ to skip)")
+
+
+class BlockSource(Protocol):
+    """What the pipeline consumes (DEVELOPERS.md, block source)."""
+
+    schema: Schema | None
+    state: str
+
+    def read_block(self, timeout: float) -> Block | None: ...
+    def take_gaps(self) -> list[str]: ...
+    def describe(self) -> str: ...
+    def rate_hint(self) -> tuple[float, str] | None: ...
+    def close(self) -> None: ...
+
+
+class BlockSink(Protocol):
+    """A recorder (DEVELOPERS.md, block sink)."""
+
+    def write_block(self, block: Block, filtered: np.ndarray) -> None: ...
+    def write_gap(self, reason: str) -> None: ...
+    def close(self) -> None: ...
+
+
+# -- commands ------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class ReplaceChain:
+    """Swap in a chain built and validated by the caller; it continues bumplessly."""
+    chain: ChainSet
+
+
+@dataclass(frozen=True)
+class Pause:
+    """Hold the view still (live) or pause the player (replay)."""
+
+
+@dataclass(frozen=True)
+class Resume:
+    """Undo Pause."""
+
+
+@dataclass(frozen=True)
+class ResetChain:
+    """Forget every stage's state; the next sample restarts it by its start policy."""
+
+
+@dataclass(frozen=True)
+class StartRecording:
+    """Record every raw sample to `sink` from the next block on (closes any previous one)."""
+    sink: Any
+
+
+@dataclass(frozen=True)
+class StopRecording:
+    """Close the current sink."""
+
+
+@dataclass(frozen=True)
+class Seek:
+    """Jump to `seconds` from the start (replay sources)."""
+    seconds: float
+
+
+@dataclass(frozen=True)
+class SetSpeed:
+    """Playback speed factor, None for as fast as possible (replay sources)."""
+    speed: float | None
+
+
+# -- status --------------------------------------------------------------------
+
+@dataclass
+class PipelineStatus:
+    """A consistent copy of what the reader thread knows; counts are since start.
+
+    frames: good frames decoded; bad: rejected frames (framer and decoder), with the
+    newest in last_bad/last_bad_reason; dropped: samples lost (counter gaps); ring_overflow:
+    samples overwritten in the ring (old history, not loss); gaps: source gaps (reconnects).
+    chain_note says why filtered equals raw while waiting for a rate; chain_error why a
+    chain was refused or failed. error: the reader thread stopped on this unexpected error.
+    """
+
+    source_state: str = "connecting"
+    source_description: str = ""
+    rate_hz: float | None = None
+    rate_origin: str | None = None
+    frames: int = 0
+    bad: int = 0
+    last_bad: bytes | None = None
+    last_bad_reason: str = ""
+    dropped: int = 0
+    ring_overflow: int = 0
+    gaps: int = 0
+    last_gap: str | None = None
+    recording: str | None = None
+    recording_error: str | None = None
+    paused: bool = False
+    chain_error: str | None = None
+    chain_note: str | None = None
+    samples_total: int = 0
+    started_monotonic: float = 0.0
+    running: bool = False
+    error: str | None = None
+    notice: str | None = None
+    warning: str | None = None
+    commands_dropped: int = 0
+
+
+# -- live sources --------------------------------------------------------------
+
+class FramedSource:
+    """A byte source with a framer and decoder: the block source of live streams.
+
+    byte_source:   monitor.sources.ByteSource (already open).
+    framer:        TextFramer or a binary framer (feed, bad).
+    decoder:       TextDecoder or a binary decoder (decode, schema, bad).
+    declared_rate: the rate the user declared (Hz), or None.
+    Block.t_host of a read is spread back from the arrival time at the known rate
+    (or evenly since the previous read), and kept increasing.
+    """
+
+    def __init__(self, byte_source: Any, framer: Any, decoder: Any,
+                 declared_rate: float | None = None) -> None:
+        if declared_rate is not None and not declared_rate > 0:
+            raise ValueError(f"declared_rate = {declared_rate!r} must be a positive number of Hz")
+        self.byte_source = byte_source
+        self.framer = framer
+        self.decoder = decoder
+        self.declared_rate = declared_rate
+        self.bad = BadFrames()
+        self._seen_bad = [0, 0]
+        self._arrival = ArrivalRate()
+        self._last_read: float | None = None
+        self._last_t = -np.inf
+
+    @property
+    def schema(self) -> Schema | None:
+        return self.decoder.schema
+
+    @property
+    def state(self) -> str:
+        return self.byte_source.state
+
+    @property
+    def dropped(self) -> int:
+        return int(getattr(self.decoder, "dropped", 0))
+
+    @property
+    def warning(self) -> str | None:
+        return getattr(self.decoder, "warning", None)
+
+    def read_block(self, timeout: float) -> Block | None:
+        data = self.byte_source.read(timeout)
+        now = time.monotonic()
+        frames = self.framer.feed(data) if data else []
+        if self.byte_source.state == "ended" and hasattr(self.framer, "flush"):
+            frames += self.framer.flush()
+        block = self.decoder.decode(frames, now) if frames else None
+        self._collect_bad()
+        if block is None or len(block) == 0:
+            return None
+        n = len(block)
+        self._arrival.add(now, n)
+        return dataclasses.replace(block, t_host=self._timestamps(now, n))
+
+    def _timestamps(self, now: float, n: int) -> np.ndarray:
+        steps = np.arange(n, dtype=np.float64)
+        hint = self.rate_hint()
+        if hint is not None:
+            t = now - (n - 1 - steps) / hint[0]
+        else:
+            since = self._last_read if self._last_read is not None else now
+            t = since + (steps + 1) * (now - since) / n
+        if t[0] <= self._last_t:                    # never go back in time
+            t = self._last_t + (steps + 1) * max(now - self._last_t, 1e-9) / n
+        self._last_read, self._last_t = now, float(t[-1])
+        return t
+
+    def _collect_bad(self) -> None:
+        for i, counter in enumerate((self.framer.bad, self.decoder.bad)):
+            if counter.count != self._seen_bad[i]:
+                self.bad.count += counter.count - self._seen_bad[i]
+                self.bad.last, self.bad.last_reason = counter.last, counter.last_reason
+                self._seen_bad[i] = counter.count
+
+    def rate_hint(self) -> tuple[float, str] | None:
+        """(Hz, origin): declared, else from device time, else a settled arrival estimate."""
+        if self.declared_rate is not None:
+            return (float(self.declared_rate), "declared")
+        device = self.decoder.device_rate() if hasattr(self.decoder, "device_rate") else None
+        if device is not None:
+            return (device, "device")
+        if self._arrival.settled():
+            return (float(self._arrival.estimate()), "estimated")
+        return None
+
+    def rate_estimate(self) -> float | None:
+        """The provisional arrival-rate estimate (Hz) before it settles, for status lines."""
+        return self._arrival.estimate()
+
+    def take_gaps(self) -> list[str]:
+        gaps = self.byte_source.take_gaps()
+        if gaps:
+            self._arrival.restart()
+        return gaps
+
+    def describe(self) -> str:
+        return self.byte_source.describe()
+
+    def close(self) -> None:
+        self.byte_source.close()
+
+
+def text_source(byte_source: Any, *, channels: tuple[str, ...] | None = None,
+                time_column: str | None = None, counter_column: str | None = None,
+                declared_rate: float | None = None) -> FramedSource:
+    """A FramedSource with the text framer and decoder (stdin keeps its first line)."""
+    from monitor.framing import TextFramer
+
+    framer = TextFramer(drop_partial_first=not getattr(byte_source, "is_stdin", False))
+    decoder = TextDecoder(channels, time_column=time_column, counter_column=counter_column)
+    return FramedSource(byte_source, framer, decoder, declared_rate)
+
+
+# -- the pipeline ----------------------------------------------------------------
+
+class Pipeline:
+    """Runs one source through the chain into the ring on its own thread.
+
+    source:        a block source (FramedSource for live streams, ReplaySource).
+    chain_spec:    the chain to build once channels and rate are known; None = identity.
+    rate_hz:       declared sample rate (Hz); else the chain file's rate_hz; else the source's.
+    ring_capacity: samples of history kept (see monitor.ring for the memory formula).
+    sink:          a recorder receiving every block, or None.
+    `ring` is None until the stream's channels are known (its first block).
+    """
+
+    def __init__(self, source: Any, chain_spec: ChainSpec | None = None,
+                 rate_hz: float | None = None, ring_capacity: int = DEFAULT_RING_CAPACITY,
+                 sink: Any = None) -> None:
+        if rate_hz is not None and not rate_hz > 0:
+            raise ValueError(f"rate_hz = {rate_hz!r} must be a positive number of Hz")
+        if not isinstance(ring_capacity, int) or ring_capacity < 1:
+            raise ValueError(f"ring_capacity = {ring_capacity!r} must be a whole number >= 1")
+        self.source = source
+        self.chain_spec = chain_spec
+        self.ring_capacity = ring_capacity
+        self.ring: Ring | None = None
+        self._declared = rate_hz if rate_hz is not None else (
+            chain_spec.rate_hz if chain_spec is not None else None)
+        self._chain: ChainSet | None = None
+        self._chain_ready = False           # built for a known rate (or replaced by the user)
+        self._sink = sink
+        self._commands: queue.Queue = queue.Queue(maxsize=COMMAND_QUEUE_SIZE)
+        self._stop = threading.Event()
+        self._thread: threading.Thread | None = None
+        self._lock = threading.Lock()
+        self._commands_dropped = 0
+        self._work = PipelineStatus(source_description=self._describe_source(),
+                                    recording=_sink_name(sink))
+        self._published = dataclasses.replace(self._work)
+
+    # -- control (any thread) ----------------------------------------------------
+
+    def start(self) -> None:
+        """Start the reader thread."""
+        if self._thread is not None:
+            raise RuntimeError("pipeline already started")
+        self._work.started_monotonic = time.monotonic()
+        self._work.running = True
+        self._publish()
+        self._thread = threading.Thread(target=self._run, name="tunetrace-reader", daemon=True)
+        self._thread.start()
+
+    def stop(self, timeout: float = 2.0) -> None:
+        """Stop the reader thread and wait up to `timeout` s for it; closes source and sink."""
+        self._stop.set()
+        if self._thread is None:
+            _quietly(self.source.close)
+            if self._sink is not None:
+                _quietly(self._sink.close)
+            return
+        self._thread.join(timeout)
+        if self._thread.is_alive():        # stuck in a read: closing the source frees it
+            _quietly(self.source.close)
+            self._thread.join(READ_TIMEOUT_S * 10)
+
+    def submit(self, command: Any) -> bool:
+        """Queue a command for the reader thread; False (and counted) if the queue is full."""
+        try:
+            self._commands.put_nowait(command)
+        except queue.Full:
+            with self._lock:
+                self._commands_dropped += 1
+                self._published.commands_dropped = self._commands_dropped
+            return False
+        return True
+
+    def status(self) -> PipelineStatus:
+        """A consistent copy of the current status."""
+        with self._lock:
+            return dataclasses.replace(self._published)
+
+    @property
+    def schema(self) -> Schema | None:
+        return self.source.schema
+
+    @property
+    def chain(self) -> ChainSet | None:
+        """The running chain (read it; only the reader thread calls process)."""
+        return self._chain
+
+    def is_alive(self) -> bool:
+        return self._thread is not None and self._thread.is_alive()
+
+    def rate(self) -> tuple[float, str] | None:
+        """(Hz, origin) of the sample rate, or None while it is not known."""
+        if self._declared is not None:
+            return (float(self._declared), "declared")
+        return self.source.rate_hint()
+
+    # -- the reader thread ---------------------------------------------------------
+
+    def _run(self) -> None:
+        try:
+            while not self._stop.is_set():
+                self._apply_commands()
+                block = self.source.read_block(READ_TIMEOUT_S)
+                for reason in self.source.take_gaps():
+                    self._work.gaps += 1
+                    self._work.last_gap = reason
+                    self._to_sink("write_gap", reason)
+                if block is not None and len(block):
+                    self._handle(block)
+                self._publish()
+                if self.source.state == "ended":
+                    break
+        except Exception as exc:  # shown in status; the process keeps running
+            self._work.error = f"reader stopped: {type(exc).__name__}: {exc}"
+        finally:
+            _quietly(self.source.close)
+            self._close_sink()
+            self._work.running = False
+            self._publish()
+
+    def _handle(self, block: Block) -> None:
+        values = block.values
+        if self.ring is None:
+            self.ring = Ring(values.shape[1], self.ring_capacity)
+        self._ensure_chain(values.shape[1])
+        try:
+            filtered = self._chain.process(values)
+        except Exception as exc:
+            self._work.chain_error = f"the chain failed ({exc}); showing raw until it is replaced"
+            self._chain = ChainSet.identity(self._channels(values.shape[1]))
+            filtered = self._chain.process(values)
+        if not self._work.paused or self._source_pauses():
+            self.ring.write(block.t_host, values, filtered)
+        self._to_sink("write_block", block, filtered)
+        self._work.frames += len(block)
+
+    def _channels(self, width: int) -> tuple[str, ...]:
+        schema = self.source.schema
+        if schema is not None and len(schema.channels) == width:
+            return tuple(schema.channels)
+        return tuple(f"ch{i}" for i in range(width))
+
+    def _ensure_chain(self, width: int) -> None:
+        if self._chain_ready:
+            return
+        channels = self._channels(width)
+        rate = self.rate()
+        if rate is None:
+            if self._chain is None:
+                self._chain = ChainSet.identity(channels)
+            self._work.chain_note = RATE_WAIT_NOTE
+            return
+        self._chain_ready = True
+        self._work.chain_note = None
+        if self.chain_spec is None:
+            self._chain = ChainSet.identity(channels, rate[0])
+            return
+        try:
+            self._chain = ChainSet(self.chain_spec, channels, rate[0])
+        except ValueError as exc:
+            self._work.chain_error = f"chain refused at {rate[0]:.6g} Hz: {exc}"
+            self._chain = ChainSet.identity(channels, rate[0])
+
+    def _apply_commands(self) -> None:
+        while True:
+            try:
+                command = self._commands.get_nowait()
+            except queue.Empty:
+                return
+            try:
+                self._apply(command)
+            except Exception as exc:
+                self._work.notice = f"{type(command).__name__} failed: {exc}"
+
+    def _apply(self, command: Any) -> None:
+        work = self._work
+        if isinstance(command, ReplaceChain):
+            if self._chain is not None:
+                command.chain.continue_from(self._chain)
+            self._chain, self._chain_ready = command.chain, True
+            work.chain_error = work.chain_note = None
+        elif isinstance(command, ResetChain):
+            if self._chain is not None:
+                self._chain.reset()
+        elif isinstance(command, Pause | Resume):
+            paused = isinstance(command, Pause)
+            if self._source_pauses():
+                getattr(self.source, "pause" if paused else "resume")()
+            work.paused = paused
+        elif isinstance(command, StartRecording):
+            self._close_sink()
+            self._sink = command.sink
+            work.recording, work.recording_error = _sink_name(command.sink), None
+        elif isinstance(command, StopRecording):
+            self._close_sink()
+        elif isinstance(command, Seek | SetSpeed):
+            name, arg = (("seek", command.seconds) if isinstance(command, Seek)
+                         else ("set_speed", command.speed))
+            method = getattr(self.source, name, None)
+            if method is None:
+                action = name.replace("_", " ")
+                work.notice = f"{self.source.describe()} is live: it cannot {action}"
+            else:
+                method(arg)
+        else:
+            work.notice = f"unknown command {command!r} ignored"
+
+    def _source_pauses(self) -> bool:
+        return hasattr(self.source, "pause") and hasattr(self.source, "resume")
+
+    def _to_sink(self, method: str, *args: Any) -> None:
+        if self._sink is None:
+            return
+        try:
+            getattr(self._sink, method)(*args)
+        except Exception as exc:  # OSError above all: a full disk must not stop the stream
+            self._close_sink()
+            self._work.recording_error = f"recording stopped: {exc}"
+
+    def _close_sink(self) -> None:
+        sink, self._sink = self._sink, None
+        self._work.recording = None
+        if sink is not None:
+            try:
+                sink.close()
+            except Exception as exc:
+                self._work.recording_error = f"recording may be incomplete: {exc}"
+
+    def _describe_source(self) -> str:
+        try:
+            return str(self.source.describe())
+        except Exception:
+            return type(self.source).__name__
+
+    def _publish(self) -> None:
+        work, source = self._work, self.source
+        work.source_state = str(source.state)
+        rate = self.rate()
+        if rate is not None:
+            work.rate_hz, work.rate_origin = rate
+        else:
+            estimate = getattr(source, "rate_estimate", lambda: None)()
+            work.rate_hz, work.rate_origin = estimate, ("estimated" if estimate else None)
+        bad = getattr(source, "bad", None)
+        if isinstance(bad, BadFrames):
+            work.bad, work.last_bad, work.last_bad_reason = bad.count, bad.last, bad.last_reason
+        work.dropped = int(getattr(source, "dropped", 0))
+        work.warning = getattr(source, "warning", None)
+        if self.ring is not None:
+            work.samples_total = self.ring.total
+            work.ring_overflow = max(0, self.ring.total - self.ring.capacity)
+        with self._lock:
+            work.commands_dropped = self._commands_dropped
+            self._published = dataclasses.replace(work)
+
+
+def _sink_name(sink: Any) -> str | None:
+    if sink is None:
+        return None
+    path = getattr(sink, "path", None)
+    return str(path) if path is not None else type(sink).__name__
+
+
+def _quietly(fn: Any) -> None:
+    try:
+        fn()
+    except Exception:
+        pass
