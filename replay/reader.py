@@ -1,0 +1,549 @@
+"""Read recordings (ours and plain CSV from other loggers) in chunks with bounded memory.
+
+The file is read in byte chunks cut at line ends (about 1 MB each); each chunk
+is parsed by numpy's C CSV parser. A chunk that does not parse is split in
+halves until the bad rows are isolated, so one bad row costs a few extra
+parses of its neighbourhood, never a Python loop over the whole file. Bad rows
+are counted, comment lines `# gap: ...` are surfaced where they stand, a torn
+last line is ignored and reported.
+"""
+
+from __future__ import annotations
+
+import csv
+import os
+import re
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from monitor.block import Block, Schema
+
+CHUNK_BYTES = 1 << 20
+_MAX_HEADER_LINE = 1 << 16
+_SAMPLE_LINES = 50
+# Time column names other loggers use, and the seconds per unit of each suffix
+# (common practice, no single source).
+_TIME_BASES = ("t", "time", "timestamp", "t_host", "elapsed", "seconds", "millis", "micros")
+_TIME_SCALES = {"": 1.0, "s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6}
+_UNIT_RE = re.compile(r"^\s*(.*?)\s*\[([^\]]*)\]\s*$")
+
+
+class RecordingError(ValueError):
+    """A recording file cannot be used; the message is one sentence naming what to fix."""
+
+
+@dataclass(frozen=True)
+class Gap:
+    """A `# gap: <reason>` line of the file; `row` is the index of the next data row."""
+
+    reason: str
+    row: int
+
+
+@dataclass
+class RecordingHeader:
+    """What the header of a recording says.
+
+    format_version: 1 for tunetrace recordings, None for plain CSV from other loggers.
+    columns:        the CSV header row as written.
+    rate_hz, rate_origin: the rate line of a tunetrace recording, else None.
+    channels_units: (name, unit) pairs of the `# channels:` line (or the header row).
+    chain_text:     the chain at start, joined from `# chain:` lines, or None.
+    time_column:    the column that gives t_host (seconds x time_scale), or None (rows / rate).
+    ignored_columns: columns skipped because they do not hold numbers.
+    notes:          other comment lines of the header, without the leading '# '.
+    """
+
+    format_version: int | None = None
+    tool: str | None = None
+    started: str | None = None
+    source: str | None = None
+    rate_hz: float | None = None
+    rate_origin: str | None = None
+    channels_units: tuple[tuple[str, str], ...] = ()
+    chain_text: str | None = None
+    columns: tuple[str, ...] = ()
+    time_column: str | None = None
+    time_scale: float = 1.0
+    device_time_column: str | None = None
+    counter_column: str | None = None
+    filtered_columns: tuple[str, ...] = ()
+    ignored_columns: tuple[str, ...] = ()
+    delimiter: str = ","
+    notes: list[str] = field(default_factory=list)
+
+
+@dataclass
+class Segment:
+    """Consecutive good data rows: the Block and, when asked for, their text lines."""
+
+    block: Block
+    lines: list[str] | None
+    first_row: int
+
+
+def split_unit(name: str) -> tuple[str, str]:
+    """'load [kg]' or 'load[kg]' -> ('load', 'kg'); no brackets -> (name, '')."""
+    match = _UNIT_RE.match(name)
+    return (match.group(1), match.group(2).strip()) if match else (name.strip(), "")
+
+
+def _time_scale_of(name: str) -> float | None:
+    """Seconds per unit if `name` looks like a time column, else None."""
+    base, unit = split_unit(name)
+    base = base.lower()
+    if unit:
+        return _TIME_SCALES.get(unit.lower()) if base in _TIME_BASES else None
+    if base == "millis":
+        return 1e-3
+    if base == "micros":
+        return 1e-6
+    stem, _, suffix = base.rpartition("_")
+    if stem in _TIME_BASES and suffix in _TIME_SCALES:
+        return _TIME_SCALES[suffix]
+    return 1.0 if base in _TIME_BASES else None
+
+
+def _parses(text: str) -> bool:
+    try:
+        float(text.strip().strip('"'))
+    except ValueError:
+        return False
+    return True
+
+
+def _open(path: str):
+    try:
+        if os.path.isdir(path):
+            raise RecordingError(f"{path} is a directory; give the path of a recording file.")
+        return open(path, "rb")
+    except FileNotFoundError:
+        raise RecordingError(f"{path} does not exist; check the recording's path.") from None
+    except PermissionError:
+        raise RecordingError(f"{path} cannot be read (permission denied); "
+                             "fix its permissions or copy it somewhere readable.") from None
+    except OSError as exc:
+        raise RecordingError(f"{path} cannot be read: {exc.strerror or exc}.") from None
+
+
+class Recording:
+    """A recording file opened for streaming.
+
+    path:        the file (tunetrace recording or plain CSV with a header row).
+    time_column: for plain CSV, the column holding time (else t/time/t_s/timestamp/...).
+    rate_hz:     the sample rate to use (overrides the header; required for plain CSV
+                 without a time column, which then gets t_host = row / rate).
+    chunk_rows:  at most this many rows per Block.
+
+    `header`, `schema` are known after construction; `bad_rows`, `torn_last_line`,
+    `gaps` and `rows` grow while the file is read (final after one full pass).
+    Raises RecordingError (one sentence) for a file that cannot be used.
+    """
+
+    def __init__(self, path: str | os.PathLike[str], time_column: str | None = None,
+                 rate_hz: float | None = None, chunk_rows: int = 65536,
+                 chunk_bytes: int = CHUNK_BYTES) -> None:
+        if rate_hz is not None and not rate_hz > 0:
+            raise RecordingError(f"--rate {rate_hz!r} must be a positive number of Hz.")
+        if chunk_rows < 1 or chunk_bytes < 1:
+            raise ValueError("chunk_rows and chunk_bytes must be at least 1")
+        self.path = os.fspath(path)
+        self.chunk_rows = chunk_rows
+        self.chunk_bytes = chunk_bytes
+        self.rate_override = rate_hz
+        self.bad_rows = 0
+        self.last_bad_row: str | None = None
+        self.torn_last_line = False
+        self.gaps = 0
+        self.rows = 0
+        self.size_bytes = os.path.getsize(self.path) if os.path.isfile(self.path) else 0
+        self._scanned_to = 0
+        self._index: list[tuple[int, float, int]] = []  # (byte offset, first t, row number)
+        with _open(self.path) as f:
+            self.header, self._data_start = self._read_header(f)
+        self._setup_columns(time_column)
+        self._t_first, self._rate_estimate = self._peek()
+
+    # -- public ----------------------------------------------------------------
+
+    @property
+    def t_first(self) -> float:
+        """t_host of the first data row (seconds)."""
+        return self._t_first
+
+    def rate(self) -> tuple[float, str] | None:
+        """(Hz, origin): --rate ("declared"), the header ("recording"), or estimated."""
+        if self.rate_override:
+            return float(self.rate_override), "declared"
+        if self.header.rate_hz:
+            return float(self.header.rate_hz), "recording"
+        if self._rate_estimate:
+            return self._rate_estimate, "estimated"
+        return None
+
+    def events(self, start_s: float = 0.0) -> Iterator[Block | Gap]:
+        """Blocks of consecutive rows and Gap marks, in file order, from start_s seconds
+        after the first row."""
+        for item in self.segments(start_s):
+            yield item.block if isinstance(item, Segment) else item
+
+    def blocks(self, start_s: float = 0.0) -> Iterator[Block]:
+        """The data as Blocks of at most chunk_rows rows (gap marks left out)."""
+        for item in self.segments(start_s):
+            if isinstance(item, Segment):
+                yield item.block
+
+    def segments(self, start_s: float = 0.0, keep_text: bool = False
+                 ) -> Iterator[Segment | Gap]:
+        """Segments (block + optional text lines) and Gap marks from start_s onwards."""
+        t_start = self._t_first + start_s
+        offset, row = self._data_start, 0
+        if start_s > 0:
+            for entry_offset, entry_t, entry_row in self._index:
+                if entry_t > t_start:
+                    break
+                offset, row = entry_offset, entry_row
+        started = start_s <= 0
+        for item in self._scan(offset, row, keep_text):
+            if isinstance(item, Segment) and not started:
+                if item.block.t_host[-1] < t_start:
+                    continue
+                item = _tail(item, int(np.searchsorted(item.block.t_host, t_start)))
+                started = True
+            if started:
+                yield item
+
+    def progress(self) -> float:
+        """Fraction of the file read by the furthest pass so far, 0..1."""
+        return min(1.0, self._scanned_to / self.size_bytes) if self.size_bytes else 1.0
+
+    # -- header ----------------------------------------------------------------
+
+    def _read_header(self, f) -> tuple[RecordingHeader, int]:
+        header = RecordingHeader()
+        chain: list[str] = []
+        first = True
+        while True:
+            raw = f.readline(_MAX_HEADER_LINE)
+            if not raw:
+                raise RecordingError(f"{self.path} has no header row; a CSV file needs a "
+                                     "first line naming its columns.")
+            if len(raw) >= _MAX_HEADER_LINE and not raw.endswith(b"\n"):
+                raise RecordingError(f"{self.path} does not look like a CSV file (a line "
+                                     f"longer than {_MAX_HEADER_LINE} bytes).")
+            line = raw.decode("utf-8", errors="replace").rstrip("\r\n")
+            if first and line.startswith("# tunetrace recording"):
+                version = line.rsplit(" ", 1)[-1]
+                if version != "1":
+                    raise RecordingError(f"{self.path} is a tunetrace recording of format "
+                                         f"{version!r}; this version reads format 1.")
+                header.format_version = 1
+            elif line.startswith("#"):
+                self._header_comment(header, line[1:].strip(), line, chain)
+            elif line.strip():
+                break
+            first = False
+        header.chain_text = "\n".join(chain) + "\n" if chain else None
+        header.delimiter = "," if header.format_version else _sniff_delimiter(line)
+        names = next(csv.reader([line], delimiter=header.delimiter))
+        header.columns = tuple(name.strip() for name in names)
+        if len(set(header.columns)) != len(header.columns):
+            raise RecordingError(f"{self.path}: the header row names a column twice; "
+                                 "give every column its own name.")
+        return header, f.tell()
+
+    @staticmethod
+    def _header_comment(header: RecordingHeader, body: str, line: str, chain: list[str]) -> None:
+        key, _, value = body.partition(":")
+        value = value.strip()
+        if header.format_version and key == "chain":
+            chain.append(line.split(":", 1)[1][1:] if ": " in line else "")
+        elif header.format_version and key == "rate_hz":
+            number, _, origin = value.partition(" ")
+            try:
+                header.rate_hz = float(number)
+            except ValueError:
+                header.rate_hz = None
+            header.rate_origin = origin.strip("() ") or None
+        elif header.format_version and key == "channels":
+            header.channels_units = tuple(split_unit(item) for item in value.split(",")
+                                          if item.strip())
+        elif header.format_version and key in ("tool", "started", "source"):
+            setattr(header, key, value)
+        elif header.format_version and key in ("time_column", "counter_column"):
+            setattr(header, "device_time_column" if key == "time_column" else key, value)
+        else:
+            header.notes.append(body)
+
+    def _setup_columns(self, time_column: str | None) -> None:
+        h = self.header
+        cols = list(h.columns)
+        if h.format_version:
+            if "t_host" not in cols:
+                raise RecordingError(f"{self.path} is a tunetrace recording without a "
+                                     "t_host column; its header row is damaged.")
+            h.time_column = "t_host"
+            h.filtered_columns = tuple(c for c in cols if c.endswith("_filtered")
+                                       and c[: -len("_filtered")] in cols)
+            special = {"t_host", h.device_time_column, h.counter_column, *h.filtered_columns}
+            channels = [c for c in cols if c not in special]
+            units = dict(h.channels_units)
+            self._usecols = None
+            self._quote = None
+            self._width = len(cols)
+            self._t_idx = cols.index("t_host")
+        else:
+            numeric = self._numeric_columns()
+            if not numeric:
+                raise RecordingError(f"{self.path}: no column under the header row holds "
+                                     "numbers; give a CSV file with numeric columns.")
+            names = [cols[i] for i in numeric]
+            if time_column is not None:
+                if time_column not in cols:
+                    raise RecordingError(f"--time-column {time_column!r} is not a column of "
+                                         f"{self.path}; its columns are {', '.join(cols)}.")
+                if time_column not in names:
+                    raise RecordingError(f"--time-column {time_column!r} does not hold "
+                                         "numbers; name a column of seconds or give --rate HZ.")
+                h.time_scale = _time_scale_of(time_column) or 1.0
+                h.time_column = time_column
+            else:
+                for name in names:
+                    scale = _time_scale_of(name)
+                    if scale is not None:
+                        h.time_column, h.time_scale = name, scale
+                        break
+            if h.time_column is None and self.rate_override is None:
+                raise RecordingError(f"{self.path} has no time column (t, time, t_s, "
+                                     "timestamp); name one with --time-column NAME or give "
+                                     "the sample rate with --rate HZ.")
+            h.ignored_columns = tuple(c for i, c in enumerate(cols) if i not in numeric)
+            self._usecols = numeric
+            self._quote = '"'
+            self._width = len(numeric)
+            channels = [n for n in names if n != h.time_column]
+            if not channels:
+                raise RecordingError(f"{self.path} holds only a time column; it needs at "
+                                     "least one column of readings.")
+            self._t_idx = names.index(h.time_column) if h.time_column else None
+            h.channels_units = tuple(split_unit(n) for n in channels)
+            units = {n: split_unit(n)[1] for n in channels}
+        position = {c: i for i, c in enumerate(cols if self._usecols is None
+                                                 else [cols[i] for i in self._usecols])}
+        self._value_idx = [position[c] for c in channels]
+        self._tdev_idx = position.get(h.device_time_column) if h.device_time_column else None
+        self._counter_idx = position.get(h.counter_column) if h.counter_column else None
+        shown = channels if h.format_version else [split_unit(c)[0] for c in channels]
+        self.schema = Schema(
+            channels=tuple(shown),
+            units=tuple(units.get(c, "") for c in channels),
+            time_column=h.device_time_column if self._tdev_idx is not None else None,
+            counter_column=h.counter_column if self._counter_idx is not None else None,
+        )
+
+    def _numeric_columns(self) -> list[int]:
+        """Indices of plain-CSV columns whose first well-formed data row holds numbers."""
+        width = len(self.header.columns)
+        with _open(self.path) as f:
+            f.seek(self._data_start)
+            for _ in range(_SAMPLE_LINES):
+                raw = f.readline(_MAX_HEADER_LINE)
+                if not raw:
+                    break
+                line = raw.decode("utf-8", errors="replace").strip()
+                if not line or line.startswith("#"):
+                    continue
+                fields = next(csv.reader([line], delimiter=self.header.delimiter))
+                if len(fields) == width:
+                    return [i for i, text in enumerate(fields) if _parses(text)]
+        raise RecordingError(f"{self.path} has no data rows with {width} fields under its "
+                             "header row; give a file with at least one row of readings.")
+
+    def _peek(self) -> tuple[float, float | None]:
+        """t of the first row and a rate estimate from the first rows' spacing."""
+        times: list[np.ndarray] = []
+        count = 0
+        for item in self._scan(self._data_start, 0, False):
+            if isinstance(item, Segment):
+                times.append(item.block.t_host)
+                count += len(item.block)
+                if count >= 4096:
+                    break
+        if not count:
+            bad = f" ({self.bad_rows} bad rows)" if self.bad_rows else ""
+            raise RecordingError(f"{self.path} has no data rows{bad}; record or export "
+                                 "some readings first.")
+        t = np.concatenate(times)
+        if self._t_idx is None:
+            return float(t[0]), None
+        steps = np.diff(t)
+        steps = steps[np.isfinite(steps) & (steps > 0)]
+        return float(t[0]), (1.0 / float(np.median(steps)) if steps.size else None)
+
+    # -- data ------------------------------------------------------------------
+
+    def _scan(self, offset: int, row: int, keep_text: bool) -> Iterator[Segment | Gap]:
+        """Segments and gaps from byte `offset` (a line start) where row number `row` begins."""
+        with _open(self.path) as f:
+            f.seek(offset)
+            leftover = b""
+            while True:
+                data = f.read(self.chunk_bytes)
+                if not data:
+                    yield from self._tail_line(leftover, row, keep_text, offset)
+                    return
+                data = leftover + data
+                cut = data.rfind(b"\n") + 1
+                leftover = data[cut:]
+                if not cut:
+                    continue
+                start, offset = offset, offset + cut
+                fresh = start >= self._scanned_to
+                items = self._chunk(data[:cut].decode("utf-8", errors="replace"),
+                                    row, keep_text, fresh)
+                segments = [item for item in items if isinstance(item, Segment)]
+                if segments:
+                    if fresh:
+                        self._index.append((start, float(segments[0].block.t_host[0]), row))
+                    row = segments[-1].first_row + len(segments[-1].block)
+                if fresh:
+                    self._scanned_to = offset
+                    self.rows = row
+                yield from items
+
+    def _tail_line(self, leftover: bytes, row: int, keep_text: bool, start: int
+                   ) -> Iterator[Segment | Gap]:
+        text = leftover.decode("utf-8", errors="replace").rstrip("\r")
+        if not text.strip():
+            return
+        fresh = start >= self._scanned_to
+        if self.header.format_version or text.startswith("#"):
+            # Our writer ends every row with a newline: a last line without one was
+            # cut by a crash and may hold a truncated number, so it is never trusted.
+            if fresh:
+                self.torn_last_line = True
+            return
+        items = self._chunk(text + "\n", row, keep_text, fresh=False)
+        if items and isinstance(items[0], Segment):
+            if fresh:
+                self.rows = row + 1
+                self._scanned_to = start + len(leftover)
+            yield from items
+        elif fresh:
+            self.torn_last_line = True
+            self._scanned_to = start + len(leftover)
+
+    def _chunk(self, text: str, row: int, keep_text: bool, fresh: bool
+               ) -> list[Segment | Gap]:
+        """Parse complete lines (text ends with a newline) into Segments and Gaps."""
+        if "\r" in text:
+            text = text.replace("\r", "")
+        lines = text.split("\n")[:-1]
+        if "#" not in text and "\n\n" not in text and not text.startswith("\n"):
+            return self._segment(lines, row, keep_text, fresh)
+        items: list[Segment | Gap] = []
+        run: list[str] = []
+        for line in [*lines, "#"]:
+            if not line.startswith("#") and line.strip():
+                run.append(line)
+                continue
+            if run:
+                items.extend(self._segment(run, row, keep_text, fresh))
+                row = items[-1].first_row + len(items[-1].block) if items and isinstance(
+                    items[-1], Segment) else row
+                run = []
+            if line.startswith("# gap:"):
+                if fresh:
+                    self.gaps += 1
+                items.append(Gap(line[len("# gap:"):].strip(), row))
+        return items
+
+    def _segment(self, lines: list[str], row: int, keep_text: bool, fresh: bool
+                 ) -> list[Segment]:
+        table, good = self._parse(lines)
+        if good is not None:
+            if fresh:
+                self.bad_rows += len(lines) - len(good)
+                bad = sorted(set(range(len(lines))) - set(good))
+                if bad:
+                    self.last_bad_row = lines[bad[-1]][:200]
+            lines = [lines[i] for i in good]
+        return [
+            Segment(self._block(table[begin:begin + self.chunk_rows], row + begin),
+                    lines[begin:begin + self.chunk_rows] if keep_text else None, row + begin)
+            for begin in range(0, table.shape[0], self.chunk_rows)
+        ]
+
+    def _block(self, table: np.ndarray, first_row: int) -> Block:
+        if self._t_idx is None:
+            # Plain CSV without a time column: t_host = row number / rate.
+            t = np.arange(first_row, first_row + table.shape[0], dtype=np.float64)
+            t /= float(self.rate_override)
+        else:
+            t = table[:, self._t_idx] * self.header.time_scale
+        return Block(
+            t_host=np.ascontiguousarray(t),
+            values=np.ascontiguousarray(table[:, self._value_idx]),
+            t_dev=None if self._tdev_idx is None else np.ascontiguousarray(
+                table[:, self._tdev_idx]),
+            counter=None if self._counter_idx is None else table[:, self._counter_idx].astype(
+                np.int64),
+        )
+
+    def _loadtxt(self, lines: list[str]) -> np.ndarray:
+        table = np.loadtxt(lines, delimiter=self.header.delimiter, comments=None,
+                           usecols=self._usecols, quotechar=self._quote, ndmin=2,
+                           dtype=np.float64)
+        if table.shape != (len(lines), self._width):
+            raise ValueError("wrong number of fields")
+        return table
+
+    def _parse(self, lines: list[str]) -> tuple[np.ndarray, list[int] | None]:
+        """(table of good rows, indices of good lines or None when all are good)."""
+        try:
+            return self._loadtxt(lines), None
+        except ValueError:
+            pass
+        if len(lines) <= 8:
+            rows, good = [], []
+            for i, line in enumerate(lines):
+                try:
+                    rows.append(self._loadtxt([line])[0])
+                    good.append(i)
+                except ValueError:
+                    continue
+            table = np.array(rows, dtype=np.float64).reshape(-1, self._width)
+            return table, good
+        mid = len(lines) // 2
+        first, good_a = self._parse(lines[:mid])
+        second, good_b = self._parse(lines[mid:])
+        good_a = list(range(mid)) if good_a is None else good_a
+        good_b = list(range(len(lines) - mid)) if good_b is None else good_b
+        return np.vstack([first, second]), good_a + [mid + i for i in good_b]
+
+
+def _tail(segment: Segment, start: int) -> Segment:
+    b = segment.block
+    block = Block(b.t_host[start:], b.values[start:],
+                  None if b.t_dev is None else b.t_dev[start:],
+                  None if b.counter is None else b.counter[start:])
+    lines = None if segment.lines is None else segment.lines[start:]
+    return Segment(block, lines, segment.first_row + start)
+
+
+def _sniff_delimiter(line: str) -> str:
+    """',' unless the header row only makes sense split at ';' or a tab."""
+    if "," in line:
+        return ","
+    for candidate in (";", "\t"):
+        if candidate in line:
+            return candidate
+    return ","
+
+
+def read_recording(path: str | os.PathLike[str], time_column: str | None = None,
+                   rate_hz: float | None = None, chunk_rows: int = 65536) -> Recording:
+    """Open a recording for streaming; raises RecordingError (one sentence) if unusable."""
+    return Recording(path, time_column=time_column, rate_hz=rate_hz, chunk_rows=chunk_rows)

@@ -1,0 +1,329 @@
+"""RecordingWriter: the crash-safe block sink that appends every raw sample to a CSV file.
+
+File format (contract in DESIGN.md, "Recording file"): comment header lines,
+the CSV header row `t_host,...`, then one row per sample; `# gap: <reason>`
+lines where reconnects or drops happened; `# stopped: <reason>` when a size or
+duration limit ended the recording. Rows reach the operating system at most
+100 ms after `write_block` returned: a killed process loses nothing older
+(the kernel keeps written data even on `kill -9`; only power loss needs the
+fsync done at `close`).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+import threading
+import time
+from datetime import UTC, datetime
+
+import numpy as np
+
+from monitor import __version__
+from monitor.block import Block, Schema
+from replay.csvtext import format_rows, format_seconds, join_columns
+
+MAGIC = "# tunetrace recording 1"
+FLUSH_INTERVAL_S = 0.1
+# The background flusher wakes this long after the first unflushed row, well
+# inside FLUSH_INTERVAL_S even when the machine is busy.
+_FLUSHER_DELAY_S = 0.04
+# Pending text larger than this is written at once, whatever the clock says.
+_MAX_PENDING_BYTES = 1 << 20
+
+
+class RecordingFull(OSError):
+    """The size or duration limit was reached; the file is complete and closed.
+
+    An OSError so that a pipeline stops recording and shows the message the
+    same way as for a disk error; `RecordingWriter.full` tells the two apart.
+    """
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+def data_columns(schema: Schema, with_filtered: bool) -> list[str]:
+    """Column names of a recording of `schema`, in file order."""
+    columns = ["t_host"]
+    if schema.counter_column:
+        columns.append(schema.counter_column)
+    if schema.time_column:
+        columns.append(schema.time_column)
+    columns.extend(schema.channels)
+    if with_filtered:
+        columns.extend(f"{name}_filtered" for name in schema.channels)
+    return columns
+
+
+def header_text(
+    schema: Schema,
+    source_description: str,
+    rate_hz: float | None,
+    rate_origin: str | None,
+    chain_text: str | None,
+    with_filtered: bool,
+    started: datetime | None = None,
+) -> str:
+    """The comment lines and CSV header row that open a recording."""
+    started = started or datetime.now(UTC)
+    channels = ", ".join(
+        f"{name} [{schema.unit(i)}]" if schema.unit(i) else name
+        for i, name in enumerate(schema.channels)
+    )
+    rate = f"{float(rate_hz)!r} ({rate_origin or 'declared'})" if rate_hz else "unknown"
+    lines = [
+        MAGIC,
+        f"# tool: tunetrace {__version__}",
+        f"# started: {started.strftime('%Y-%m-%dT%H:%M:%SZ')}",
+        f"# source: {_one_line(source_description)}",
+        f"# rate_hz: {rate}",
+        f"# channels: {channels}",
+    ]
+    if schema.time_column:
+        lines.append(f"# time_column: {schema.time_column}")
+    if schema.counter_column:
+        lines.append(f"# counter_column: {schema.counter_column}")
+    for line in (chain_text or "").splitlines():
+        lines.append(f"# chain: {line}".rstrip())
+    row = io.StringIO()
+    csv.writer(row, lineterminator="\n").writerow(data_columns(schema, with_filtered))
+    return "\n".join(lines) + "\n" + row.getvalue()
+
+
+class RecordingWriter:
+    """Block sink that appends every raw sample of a stream to a recording file.
+
+    path:               the CSV file to create; an existing file is refused
+                        (FileExistsError) unless force=True.
+    schema:             channel names and units, device time and counter columns.
+    source_description: e.g. "/dev/ttyACM0 @ 115200".
+    rate_hz, rate_origin: the sample rate and how it was obtained
+                        ("declared", "device", "estimated", "recording"), or None.
+    chain_text:         the chain file at start (TOML), written as `# chain:` lines.
+    with_filtered:      also write `<channel>_filtered` columns.
+    limit_bytes, limit_seconds: stop cleanly once the file would grow beyond
+                        this many bytes or the recording beyond this many seconds;
+                        `write_block` then raises RecordingFull once.
+
+    `write_block`, `write_gap` and `close` are called by one thread (the
+    pipeline's reader); a small background thread only flushes. OSError from
+    the disk propagates from the next call.
+    """
+
+    def __init__(
+        self,
+        path: str | os.PathLike[str],
+        schema: Schema,
+        source_description: str,
+        rate_hz: float | None,
+        rate_origin: str | None,
+        chain_text: str | None,
+        force: bool = False,
+        with_filtered: bool = False,
+        limit_bytes: int | None = None,
+        limit_seconds: float | None = None,
+    ) -> None:
+        if limit_bytes is not None and not limit_bytes > 0:
+            raise ValueError(f"limit_bytes = {limit_bytes!r} must be a positive number of bytes")
+        if limit_seconds is not None and not limit_seconds > 0:
+            raise ValueError(f"limit_seconds = {limit_seconds!r} must be positive seconds")
+        if not schema.channels:
+            raise ValueError("schema has no channels; a recording needs at least one")
+        self.path = os.fspath(path)
+        self.schema = schema
+        self.with_filtered = with_filtered
+        self.limit_bytes = limit_bytes
+        self.limit_seconds = limit_seconds
+        self.rows = 0
+        self.bytes_written = 0
+        self.full: str | None = None
+        self._t0 = time.monotonic()
+        self._t0_fixed = False
+        self._pending: list[str] = []
+        self._pending_bytes = 0
+        self._dirty_since: float | None = None
+        self._last_flush = time.monotonic()
+        self._error: OSError | None = None
+        self._failed = False
+        self._closed = False
+        self._cond = threading.Condition()
+        self._file = open(self.path, "wb" if force else "xb", buffering=0)
+        try:
+            self._write_now(header_text(schema, source_description, rate_hz, rate_origin,
+                                        chain_text, with_filtered))
+        except OSError:
+            self._file.close()
+            if not force:
+                os.unlink(self.path)
+            raise
+        self._flusher = threading.Thread(target=self._flush_loop, name="recording-flush",
+                                         daemon=True)
+        self._flusher.start()
+
+    # -- the block-sink contract -------------------------------------------------
+
+    def write_block(self, block: Block, filtered: np.ndarray | None = None) -> None:
+        """Append the rows of `block` (and `filtered` (n, channels) if with_filtered)."""
+        if self.full or self._failed or self._closed or len(block) == 0:
+            return
+        if not self._t0_fixed:
+            self._t0 = min(self._t0, float(block.t_host[0]))
+            self._t0_fixed = True
+        t_rel = np.asarray(block.t_host, dtype=np.float64) - self._t0
+        floats = [np.asarray(block.values, dtype=np.float64)]
+        if self.schema.time_column and block.t_dev is not None:
+            floats.insert(0, np.asarray(block.t_dev, dtype=np.float64).reshape(-1, 1))
+        if self.with_filtered:
+            if filtered is None:
+                raise ValueError("filtered values are required when with_filtered is set")
+            floats.append(np.asarray(filtered, dtype=np.float64))
+        counter = []
+        if self.schema.counter_column and block.counter is not None:
+            counter = format_rows(np.asarray(block.counter, dtype=np.int64).reshape(-1, 1))
+        text_rows = join_columns(format_seconds(t_rel), counter,
+                                 format_rows(np.hstack(floats)))
+        stop = self._limit_cut(t_rel, text_rows)
+        with self._cond:
+            self._raise_pending_error()
+            if stop is None:
+                self._append(text_rows, len(block))
+                if (self._pending_bytes > _MAX_PENDING_BYTES
+                        or time.monotonic() - self._last_flush >= FLUSH_INTERVAL_S):
+                    self._flush_or_fail()
+                return
+            kept_text, kept_rows, reason = stop
+            self._append(kept_text, kept_rows)
+            self._append(f"# stopped: {reason}\n", 0)
+            self.full = reason
+        self.close()
+        raise RecordingFull(f"recording {self.path} stopped: {reason}")
+
+    def write_gap(self, reason: str) -> None:
+        """Mark a reconnect or dropped frames at this point of the file; flushes."""
+        if self.full or self._failed or self._closed:
+            return
+        with self._cond:
+            self._raise_pending_error()
+            self._append(f"# gap: {_one_line(reason)}\n", 0)
+            self._flush_or_fail()
+
+    def close(self) -> None:
+        """Flush, fsync and close the file; idempotent. Raises an OSError not yet reported."""
+        with self._cond:
+            if self._closed:
+                return
+            self._closed = True
+            self._cond.notify_all()
+            try:
+                if self._error is None and not self._failed:
+                    self._flush_locked()
+                    os.fsync(self._file.fileno())
+            except OSError as exc:
+                self._error = exc
+            finally:
+                self._file.close()
+            error, self._error = self._error, None
+        self._flusher.join(timeout=1.0)
+        if error is not None:
+            raise error
+
+    @property
+    def seconds(self) -> float:
+        """Seconds since the recording started (monotonic clock)."""
+        return time.monotonic() - self._t0
+
+    # -- internals ---------------------------------------------------------------
+
+    def _limit_cut(self, t_rel: np.ndarray, text: str) -> tuple[str, int, str] | None:
+        """None when the block fits the limits, else (text that fits, its rows, reason)."""
+        keep = len(t_rel)
+        reason = ""
+        if self.limit_seconds is not None and t_rel[-1] > self.limit_seconds:
+            keep = int(np.searchsorted(t_rel, self.limit_seconds, side="right"))
+            reason = f"reached the duration limit of {self.limit_seconds:g} s"
+        size = self.bytes_written + self._pending_bytes
+        if self.limit_bytes is not None and size + len(text) > self.limit_bytes:
+            lengths = np.cumsum([len(line) + 1 for line in text.split("\n")[:-1]])
+            fit = int(np.searchsorted(lengths, self.limit_bytes - size, side="right"))
+            if fit <= keep:
+                keep = fit
+                reason = f"reached the size limit of {self.limit_bytes} bytes"
+        if not reason:
+            return None
+        lines = text.split("\n")[:keep]
+        return ("\n".join(lines) + "\n" if keep else ""), keep, reason
+
+    def _append(self, text: str, rows: int) -> None:
+        if not text:
+            return
+        self._pending.append(text)
+        self._pending_bytes += len(text)
+        self.rows += rows
+        if self._dirty_since is None:
+            self._dirty_since = time.monotonic()
+            self._cond.notify_all()
+
+    def _write_now(self, text: str) -> None:
+        data = memoryview(text.encode("utf-8"))
+        while data:
+            written = self._file.write(data)
+            if not written:
+                raise OSError(f"could not write to {self.path}")
+            self.bytes_written += written
+            data = data[written:]
+
+    def _flush_locked(self) -> None:
+        self._last_flush = time.monotonic()
+        if not self._pending:
+            return
+        text = "".join(self._pending)
+        self._pending.clear()
+        self._pending_bytes = 0
+        self._dirty_since = None
+        self._write_now(text)
+
+    def _flush_or_fail(self) -> None:
+        try:
+            self._flush_locked()
+        except OSError:
+            self._failed = True
+            raise
+
+    def _raise_pending_error(self) -> None:
+        """Report an OSError the background flusher met, once; later calls do nothing."""
+        if self._error is not None:
+            error, self._error = self._error, None
+            self._failed = True
+            raise error
+
+    def _flush_loop(self) -> None:
+        with self._cond:
+            while not self._closed:
+                if self._dirty_since is None or self._error is not None:
+                    self._cond.wait()
+                    continue
+                delay = self._dirty_since + _FLUSHER_DELAY_S - time.monotonic()
+                if delay > 0:
+                    self._cond.wait(delay)
+                    continue
+                try:
+                    self._flush_locked()
+                except OSError as exc:
+                    self._error = exc
+
+
+def open_error_sentence(exc: OSError, path: str, what: str = "recording") -> str:
+    """One sentence for an OSError on `path`, naming what to fix."""
+    if isinstance(exc, FileExistsError):
+        return f"{path} already exists; choose another file or give --force to overwrite it."
+    if isinstance(exc, IsADirectoryError):
+        return f"{path} is a directory; give a file name for the {what}."
+    if isinstance(exc, PermissionError):
+        return f"permission denied writing {path}; choose a writable place for the {what}."
+    if isinstance(exc, FileNotFoundError):
+        return f"the folder of {path} does not exist; create it or choose another path."
+    reason = (exc.strerror or str(exc)).rstrip(".")
+    return f"writing the {what} {path} failed: {reason}; free space or choose another disk."
