@@ -5,17 +5,33 @@ everything and raises ValueError with a one-sentence reason, so a refused chain
 never touches a running one. `process` is called only by the one thread that
 owns the chain.
 
-PLACEHOLDER: this identity-only version exists so that the streaming core can
-be built against the interface; the filters work replaces the body.
+Channels whose stage lists are identical form a group and run together: one
+vectorized call per stage over a (n, g) array. A group whose stages are all
+linear also has a fused fast path for short blocks (see `filters.blockrun`).
+
+Missing samples: a non-finite input (NaN, +-inf) passes through to the output
+unchanged, and the stages see the channel's last finite value in its place, so
+one bad sample never poisons the filter state. Until a channel has had a finite
+sample its stages stay unstarted (the start policy applies at the first one).
+
+Retune (`continue_from`): per channel and position, a stage of the same kind as
+the old chain's stage there takes over from it (an unchanged stage keeps its
+exact state; a changed one is settled at the old stage's last output, see
+`filters.stages`); any other stage is settled at the old chain's last output
+for that channel.
 """
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
-from filters.spec import ChainSpec
+from filters.blockrun import StageRun
+from filters.spec import ChainSpec, StageSpec
+from filters.stages import make_stage
 
 
 class ChainSet:
@@ -23,27 +39,135 @@ class ChainSet:
 
     spec:     the chain file contents.
     channels: channel names in column order of the values passed to `process`.
-    rate_hz:  sample rate the stages are designed for (Hz, > 0).
+    rate_hz:  sample rate the stages are designed for (Hz, > 0); it overrides spec.rate_hz.
     """
 
     def __init__(self, spec: ChainSpec, channels: Sequence[str], rate_hz: float) -> None:
-        if not rate_hz > 0:
+        if not (isinstance(rate_hz, int | float) and math.isfinite(rate_hz) and rate_hz > 0):
             raise ValueError(f"rate_hz = {rate_hz!r} must be a positive number of Hz")
         self.spec = spec
         self.channels = tuple(channels)
         self.rate_hz = float(rate_hz)
+        if len(set(self.channels)) != len(self.channels):
+            raise ValueError(f"channel names {list(self.channels)} must be unique")
+        self.designs = tuple(self._design(i, stage) for i, stage in enumerate(spec.stages))
+        for number, stage in enumerate(spec.stages, start=1):
+            unknown = [c for c in stage.channels or () if c not in self.channels]
+            if unknown:
+                raise ValueError(
+                    f"stage {number} ({stage.kind}): channels names '{unknown[0]}', which is "
+                    f"not a channel of this stream ({', '.join(self.channels) or 'none'})")
+
+        members: dict[tuple[int, ...], list[int]] = {}
+        for column, name in enumerate(self.channels):
+            key = tuple(i for i, _ in spec.stages_for(name))
+            members.setdefault(key, []).append(column)
+        self._groups: list[tuple[tuple[int, ...], np.ndarray, StageRun]] = []
+        self._place: dict[str, tuple[StageRun, int, tuple[int, ...]]] = {}
+        for key, columns in members.items():
+            width = len(columns)
+            stages = [make_stage(self.designs[i], width, start=spec.stages[i].start,
+                                 bypass=spec.stages[i].bypass) for i in key]
+            run = StageRun(stages, width)
+            self._groups.append((key, np.array(columns, dtype=np.intp), run))
+            for position, column in enumerate(columns):
+                self._place[self.channels[column]] = (run, position, key)
+        # one group over all columns in order: no gather/scatter per block
+        self._whole = (self._groups[0][2] if len(self._groups) == 1
+                       and len(self.channels) > 0 else None)
+
+    def _design(self, index: int, stage: StageSpec) -> Any:
+        from filters.design import design_stage
+
+        try:
+            return design_stage(stage, self.rate_hz)
+        except ValueError as exc:
+            raise ValueError(f"stage {index + 1} ({stage.kind}): {exc}") from None
 
     @classmethod
     def identity(cls, channels: Sequence[str], rate_hz: float = 1.0) -> ChainSet:
         """A chain with no stages: filtered equals raw."""
         return cls(ChainSpec(), channels, rate_hz)
 
+    def designs_for(self, channel: str) -> list[tuple[int, Any]]:
+        """(file index, StageDesign) of every stage that runs on `channel`, bypassed included."""
+        return [(i, self.designs[i]) for i, _ in self.spec.stages_for(channel)]
+
     def process(self, values: np.ndarray) -> np.ndarray:
-        """Filter one block. values: (n, channels) float64 -> (n, channels) float64."""
-        return np.array(values, dtype=np.float64, copy=True)
+        """Filter one block. values: (n, channels) float64 -> (n, channels) float64, a new array."""
+        x = raw = np.asarray(values, dtype=np.float64)
+        k = len(self.channels)
+        if x.ndim != 2 or x.shape[1] != k:
+            raise ValueError(f"values has shape {x.shape}; expected (n, {k})")
+        n = x.shape[0]
+        if n == 0 or k == 0:
+            return np.array(x, copy=True)
+        missing = None
+        flat = x.reshape(-1)
+        if not math.isfinite(flat.dot(flat)):  # cheapest test: NaN/inf (or |x| > 1e154)
+            finite = np.isfinite(x)
+            if not finite.all():
+                missing = ~finite
+                x, never = self._fill_missing(x, finite)
+        if self._whole is not None:
+            out = self._whole.process(x)
+        else:
+            out = np.empty((n, k))
+            for _, columns, run in self._groups:
+                out[:, columns] = run.process(x[:, columns])
+        if missing is not None:
+            out[missing] = raw[missing]
+            for _, columns, run in self._groups:
+                run.reset(never[columns])
+        return out
+
+    def _fill_missing(self, x: np.ndarray, finite: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Replace non-finite samples by the channel's last finite value (or its next one
+        if it has none yet); returns (filled, columns that still have no finite value)."""
+        n, k = x.shape
+        previous = np.array([self._place[c][0].bounds[0, self._place[c][1]]
+                             for c in self.channels])
+        rows = np.where(finite, np.arange(n)[:, None], -1)
+        np.maximum.accumulate(rows, axis=0, out=rows)
+        filled = np.where(rows >= 0, x[np.maximum(rows, 0), np.arange(k)], previous)
+        has_any = finite.any(axis=0)
+        first = x[finite.argmax(axis=0), np.arange(k)]
+        lead = np.isnan(filled) & has_any[None, :]
+        filled[lead] = np.broadcast_to(first, (n, k))[lead]
+        never = np.isnan(previous) & ~has_any
+        filled[:, never] = 0.0  # processed, then the columns are reset: as if never seen
+        return filled, never
 
     def reset(self) -> None:
         """Forget all state; the next sample starts each stage by its start policy."""
+        for _, _, run in self._groups:
+            run.reset(None)
 
     def continue_from(self, old: ChainSet) -> None:
         """Take over from `old` without an output jump (steady state at its last output)."""
+        for name in self.channels:
+            if name not in old._place:
+                continue
+            run, column, key = self._place[name]
+            old_run, old_column, old_key = old._place[name]
+            old_bounds = old_run.bounds[:, old_column]
+            last_output = old_bounds[-1]
+            if math.isnan(last_output):
+                continue
+            bounds = np.full(len(key) + 1, last_output)
+            bounds[0] = old_bounds[0]
+            for position, index in enumerate(key):
+                stage, spec = run.stages[position], self.spec.stages[index]
+                old_spec = (old.spec.stages[old_key[position]]
+                            if position < len(old_key) else None)
+                if old_spec is not None and old_spec.kind == spec.kind:
+                    old_stage = old_run.stages[position]
+                    if old_spec == spec and old.rate_hz == self.rate_hz:
+                        stage.copy_state(column, old_stage, old_column)
+                    else:
+                        stage.settle(column, old_bounds[position], old_bounds[position + 1])
+                    bounds[position + 1] = old_bounds[position + 1]
+                else:
+                    stage.settle(column, last_output, last_output)
+            run.bounds[:, column] = bounds
+            run.refresh()
