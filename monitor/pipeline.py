@@ -299,9 +299,9 @@ class Pipeline:
     # -- control (any thread) ----------------------------------------------------
 
     def start(self) -> None:
-        """Start the reader thread."""
+        """Start the reader thread (a second call does nothing)."""
         if self._thread is not None:
-            raise RuntimeError("pipeline already started")
+            return
         self._work.started_monotonic = time.monotonic()
         self._work.running = True
         self._publish()

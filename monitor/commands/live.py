@@ -1,15 +1,169 @@
-"""`tunetrace live`."""
+"""`tunetrace live SOURCE`: a real source through the chain, in the UI or as plain stats lines."""
 
 from __future__ import annotations
 
 import argparse
+import sys
+import time
+from typing import Any, TextIO
 
+from monitor.commands.common import add_source_options, build_pipeline
 from monitor.errors import UserError
+
+STATS_INTERVAL_S = 1.0
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    pass
+    parser.add_argument("source", metavar="SOURCE",
+                        help="device path (/dev/ttyACM0, COM3), pyserial URL (socket://host:port, "
+                             "rfc2217://..., loop://), - for stdin, or sim://")
+    add_source_options(parser)
+    parser.add_argument("--force", action="store_true",
+                        help="overwrite the --record file if it exists")
 
 
 def run(args: argparse.Namespace) -> int:
-    raise UserError("'tunetrace live' is not built yet.", exit_code=1)
+    pipeline = build_pipeline(args, args.source)
+    return run_session(pipeline, args)
+
+
+def run_session(pipeline: Any, args: argparse.Namespace) -> int:
+    """Plain stats lines with --plain, else the terminal UI; both stop the pipeline at the end."""
+    if getattr(args, "plain", False):
+        return run_plain(pipeline, getattr(args, "duration", None))
+    try:
+        from monitor.tui.app import run_app
+    except ImportError as exc:
+        pipeline.stop()
+        raise UserError(f"the terminal UI cannot start ({exc}); use --plain for stats lines.",
+                        exit_code=1) from None
+    pipeline.start()
+    return run_app(pipeline, args)
+
+
+def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
+              err: TextIO | None = None) -> int:
+    """Print one stats line per second until `duration` s, Ctrl-C or the end of the source."""
+    out, err = out or sys.stdout, err or sys.stderr
+    plus_minus = "±" if _can_print(out, "±") else "+/-"
+    pipeline.start()
+    started = time.monotonic()
+    next_line, shown_total = started + STATS_INTERVAL_S, 0
+    reported: set[str] = set()
+    reductions: list[list[float]] = []          # per stats line, per channel (dB)
+    try:
+        while True:
+            now = time.monotonic()
+            status = pipeline.status()
+            _report_problems(status, reported, err)
+            if not status.running or (duration is not None and now - started >= duration):
+                break
+            if now >= next_line:
+                total = status.samples_total
+                stats = _newest_stats(pipeline, total - shown_total)
+                print(stats_line(now - started, status, pipeline, stats, plus_minus),
+                      file=out, flush=True)
+                if stats:
+                    reductions.append([s.reduction_db for s in stats])
+                shown_total = total
+                next_line += STATS_INTERVAL_S * max(1, int((now - next_line) // STATS_INTERVAL_S))
+            wake = next_line if duration is None else min(next_line, started + duration)
+            time.sleep(max(0.0, min(0.05, wake - time.monotonic())))
+    except KeyboardInterrupt:
+        pass
+    finally:
+        pipeline.stop()
+    status = pipeline.status()
+    _report_problems(status, reported, err)
+    print(summary_line(time.monotonic() - started, status, pipeline, reductions),
+          file=out, flush=True)
+    if status.error:
+        raise UserError(f"the stream stopped on an internal error ({status.error}); "
+                        f"please report it.", exit_code=1)
+    return 0
+
+
+def _can_print(stream: TextIO, text: str) -> bool:
+    try:
+        text.encode(getattr(stream, "encoding", None) or "ascii")
+    except (UnicodeEncodeError, LookupError):
+        return False
+    return True
+
+
+def _report_problems(status: Any, reported: set[str], err: TextIO) -> None:
+    """Each new chain, recording, decoding or reader problem once on stderr."""
+    for text in (status.chain_error, status.recording_error, status.warning, status.error,
+                 status.notice):
+        if text and text not in reported:
+            reported.add(text)
+            print(f"tunetrace: {text}", file=err, flush=True)
+
+
+def rate_text(status: Any) -> str:
+    """e.g. '250 Hz declared', '~249.8 Hz estimating', 'rate ?'."""
+    if status.rate_hz is None:
+        return "rate ?"
+    waiting = status.chain_note is not None and status.rate_origin == "estimated"
+    prefix = "~" if status.rate_origin == "estimated" else ""
+    origin = "estimating" if waiting else status.rate_origin
+    return f"{prefix}{status.rate_hz:.5g} Hz {origin}"
+
+
+def _channel_labels(pipeline: Any, count: int) -> list[str]:
+    schema = pipeline.schema
+    labels = []
+    for k in range(count):
+        name = schema.channels[k] if schema is not None and k < len(schema.channels) else f"ch{k}"
+        unit = schema.unit(k) if schema is not None else ""
+        labels.append(f"{name}[{unit}]" if unit else name)
+    return labels
+
+
+def _newest_stats(pipeline: Any, samples: int) -> list[Any]:
+    from monitor.stats import ring_stats
+
+    ring = pipeline.ring
+    if ring is None or samples <= 0:
+        return []
+    return ring_stats(ring, samples)
+
+
+def stats_line(elapsed: float, status: Any, pipeline: Any, stats: list[Any],
+               plus_minus: str = "±") -> str:
+    """One line: time, rate, counts, then per channel raw and filtered mean ± noise."""
+    head = (f"{elapsed:6.1f} s  {rate_text(status)}  frames {status.frames}  bad {status.bad}  "
+            f"dropped {status.dropped}")
+    if status.source_state not in ("connected", "ended"):
+        head += f"  [{status.source_state}]"
+    if not stats:
+        return head + "  (no new samples)"
+    parts = [
+        f"{label} raw {s.mean_raw:.4g}{plus_minus}{s.noise_raw:.3g} "
+        f"filt {s.mean_filtered:.4g}{plus_minus}{s.noise_filtered:.3g}"
+        for label, s in zip(_channel_labels(pipeline, len(stats)), stats, strict=True)
+    ]
+    return head + "  | " + "  | ".join(parts)
+
+
+def summary_line(elapsed: float, status: Any, pipeline: Any,
+                 reductions: list[list[float]]) -> str:
+    """The closing line: totals, and each channel's median noise reduction over the lines.
+
+    The median over one-second windows keeps a parcel step in one window from
+    dragging the figure down (a step counts as "noise" in its window).
+    """
+    import numpy as np
+
+    per_s = status.frames / elapsed if elapsed > 0 else 0.0
+    text = (f"summary: {elapsed:.1f} s  {status.frames} frames ({per_s:.1f}/s)  bad "
+            f"{status.bad}  dropped {status.dropped}  gaps {status.gaps}  {rate_text(status)}")
+    widths = {len(row) for row in reductions}
+    if len(widths) == 1:
+        medians = np.median(np.array(reductions), axis=0)
+        labels = _channel_labels(pipeline, len(medians))
+        text += "  median noise reduction " + ", ".join(
+            f"{label} {db:.1f} dB" for label, db in zip(labels, medians, strict=True))
+    if status.last_bad_reason:
+        text += f"  (last bad frame: {status.last_bad_reason})"
+    return text

@@ -1,0 +1,252 @@
+"""Options and set-up shared by the verbs that stream a source (live, demo, record).
+
+Imported by the CLI at startup: heavy modules (numpy, scipy, the pipeline) are
+imported inside the functions.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import os
+import time
+from typing import Any
+
+from monitor.errors import UserError
+
+DEFAULT_BAUD = 115200
+DEFAULT_RING_SECONDS = 600.0
+RING_RATE_IF_UNKNOWN_HZ = 1000.0
+MAX_BUFFERED_SAMPLES = 200_000       # held while the recording waits for the sample rate
+RATE_WAIT_LIMIT_S = 5.0
+
+
+def positive_float(text: str) -> float:
+    """argparse type: a finite number > 0."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not (value > 0 and math.isfinite(value)):
+        raise argparse.ArgumentTypeError(f"{text} must be a positive number")
+    return value
+
+
+def baud_rate(text: str) -> int:
+    """argparse type: a whole number of baud > 0."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"{text!r} is not a whole number of baud (e.g. 115200)") from None
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"{text} must be a positive number of baud")
+    return value
+
+
+def channel_list(text: str) -> tuple[str, ...]:
+    """argparse type: comma-separated channel names."""
+    names = tuple(name.strip() for name in text.split(","))
+    if not all(names):
+        raise argparse.ArgumentTypeError(f"{text!r} has an empty name; give e.g. load,current,vib")
+    return names
+
+
+def add_source_options(parser: argparse.ArgumentParser) -> None:
+    """The options every streaming verb shares (DESIGN.md, command line)."""
+    parser.add_argument("--baud", type=baud_rate, default=DEFAULT_BAUD, metavar="N",
+                        help=f"line speed in baud (default {DEFAULT_BAUD}; ignored by - and sim://)")
+    parser.add_argument("--rate", type=positive_float, metavar="HZ",
+                        help="declared sample rate; else the chain file's rate_hz, else the "
+                             "device time column, else estimated from arrival times")
+    parser.add_argument("--chain", metavar="FILE", help="chain file (TOML) to run on the stream")
+    parser.add_argument("--record", metavar="FILE", help="record every raw sample to this CSV file")
+    parser.add_argument("--duration", type=positive_float, metavar="S",
+                        help="stop after S seconds")
+    parser.add_argument("--plain", action="store_true",
+                        help="no UI: print one stats line per second on stdout")
+    parser.add_argument("--time-column", metavar="NAME",
+                        help="column holding the device time in seconds")
+    parser.add_argument("--counter-column", metavar="NAME",
+                        help="column holding the sample counter; gaps count as dropped")
+    parser.add_argument("--channels", type=channel_list, metavar="NAMES",
+                        help="column names for a stream without a header line, comma "
+                             "separated (default ch0,ch1,...)")
+    parser.add_argument("--ring-seconds", type=positive_float, default=DEFAULT_RING_SECONDS,
+                        metavar="S",
+                        help=f"history kept, in seconds at the declared rate or at "
+                             f"{RING_RATE_IF_UNKNOWN_HZ:g} Hz when it is not declared (default "
+                             f"{DEFAULT_RING_SECONDS:g}); memory = (2 * channels + 1) * 8 bytes "
+                             f"per sample, e.g. 81.6 MB for 600 s of 8 channels at 1 kHz")
+
+
+def load_chain_file(path: str) -> Any:
+    """Read and parse a chain file -> ChainSpec; UserError naming the file and the problem."""
+    return parse_chain_text(read_chain_text(path), path)
+
+
+def read_chain_text(path: str) -> str:
+    """The text of a chain file; UserError when it cannot be read."""
+    try:
+        with open(path, encoding="utf-8") as handle:
+            return handle.read()
+    except FileNotFoundError:
+        raise UserError(f"chain file {path} does not exist; check the path.") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        reason = getattr(exc, "strerror", None) or str(exc)
+        raise UserError(f"cannot read chain file {path}: {reason}.") from None
+
+
+def parse_chain_text(text: str, where: str) -> Any:
+    """ChainSpec from chain-file text; UserError starting with `where` on a bad file."""
+    from filters.chainfile import parse_chain
+
+    try:
+        return parse_chain(text)
+    except ValueError as exc:
+        raise UserError(f"{where}: {str(exc).rstrip('.')}.") from None
+
+
+def check_chain_at_rate(spec: Any, rate_hz: float, where: str) -> None:
+    """Design `spec` at `rate_hz` now, so an impossible chain is refused before streaming."""
+    from filters.chainset import ChainSet
+
+    names = sorted({name for stage in spec.stages for name in (stage.channels or ())}) or ["x"]
+    try:
+        ChainSet(spec, names, rate_hz)
+    except ValueError as exc:
+        raise UserError(f"{where} cannot run at {rate_hz:g} Hz: {str(exc).rstrip('.')}.") \
+            from None
+
+
+def declared_rate(args: argparse.Namespace, spec: Any, where: str | None) -> float | None:
+    """--rate, else the chain file's rate_hz; UserError when the two disagree."""
+    rate = getattr(args, "rate", None)
+    file_rate = getattr(spec, "rate_hz", None) if spec is not None else None
+    if rate is not None and file_rate is not None and abs(rate - file_rate) > 1e-3 * file_rate:
+        raise UserError(f"--rate {rate:g} disagrees with rate_hz = {file_rate:g} in "
+                        f"{where}; give only one of them.")
+    return rate if rate is not None else file_rate
+
+
+def ring_capacity(ring_seconds: float, rate_hz: float | None) -> int:
+    """Samples of history for `ring_seconds` at the rate (or 1 kHz when unknown)."""
+    return max(1, int(math.ceil(ring_seconds * (rate_hz or RING_RATE_IF_UNKNOWN_HZ))))
+
+
+def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None = None,
+                   chain_name: str | None = None) -> Any:
+    """A ready (not started) Pipeline for `source` (a SOURCE string or a block source).
+
+    Reads --chain (unless `chain_text` is given, named `chain_name` in messages),
+    --rate, --record, --ring-seconds, --baud, --channels, --time-column and
+    --counter-column from `args` (missing ones take defaults). Raises UserError
+    for a bad chain file, a conflicting rate, an unusable recording path or a
+    source that cannot be opened.
+    """
+    from monitor.pipeline import Pipeline, text_source
+
+    if chain_text is None and getattr(args, "chain", None):
+        chain_name = args.chain
+        chain_text = read_chain_text(chain_name)
+    spec = parse_chain_text(chain_text, chain_name or "chain") if chain_text else None
+    rate = declared_rate(args, spec, chain_name)
+    if spec is not None and rate is not None:
+        check_chain_at_rate(spec, rate, chain_name or "the chain")
+    record = getattr(args, "record", None)
+    force = getattr(args, "force", False)
+    if record:
+        check_record_path(record, force=force)
+    if isinstance(source, str):
+        from monitor.sources import open_byte_source
+
+        byte_source = open_byte_source(source, getattr(args, "baud", DEFAULT_BAUD))
+        source = text_source(byte_source, channels=getattr(args, "channels", None),
+                             time_column=getattr(args, "time_column", None),
+                             counter_column=getattr(args, "counter_column", None),
+                             declared_rate=rate)
+    capacity = ring_capacity(getattr(args, "ring_seconds", DEFAULT_RING_SECONDS), rate)
+    pipeline = Pipeline(source, chain_spec=spec, rate_hz=rate, ring_capacity=capacity)
+    if record:
+        pipeline.submit(start_recording(pipeline, record, chain_text, force=force))
+    return pipeline
+
+
+def check_record_path(path: str, force: bool = False) -> None:
+    """UserError now, before streaming, if `path` cannot become a new recording."""
+    from replay.writer import open_error_sentence
+
+    folder = os.path.dirname(os.path.abspath(path))
+    if os.path.isdir(path):
+        raise UserError(open_error_sentence(IsADirectoryError(path), path))
+    if os.path.exists(path) and not force:
+        raise UserError(open_error_sentence(FileExistsError(path), path))
+    if not os.path.isdir(folder):
+        raise UserError(open_error_sentence(FileNotFoundError(path), path))
+    if not os.access(folder, os.W_OK):
+        raise UserError(open_error_sentence(PermissionError(path), path))
+
+
+def start_recording(pipeline: Any, path: str, chain_text: str | None = None,
+                    force: bool = False) -> Any:
+    """The StartRecording command for a recording of `pipeline`'s stream to `path`."""
+    from monitor.pipeline import StartRecording
+
+    return StartRecording(DeferredRecording(pipeline, path, chain_text, force))
+
+
+class DeferredRecording:
+    """A block sink that opens the RecordingWriter once channels and rate are known.
+
+    The header of a recording names the channels and the sample rate, which a
+    live stream only reveals after its first lines; blocks are held (at most
+    MAX_BUFFERED_SAMPLES, at most RATE_WAIT_LIMIT_S) until the rate is known.
+    """
+
+    def __init__(self, pipeline: Any, path: str, chain_text: str | None, force: bool) -> None:
+        self.pipeline = pipeline
+        self.path = path
+        self.chain_text = chain_text
+        self.force = force
+        self._writer: Any = None
+        self._held: list[tuple[str, tuple]] = []
+        self._held_samples = 0
+        self._first_at: float | None = None
+
+    def write_block(self, block: Any, filtered: Any = None) -> None:
+        self._forward("write_block", (block, filtered), len(block))
+
+    def write_gap(self, reason: str) -> None:
+        self._forward("write_gap", (reason,), 0)
+
+    def close(self) -> None:
+        if self._writer is None and self._held and self.pipeline.schema is not None:
+            self._open()
+        if self._writer is not None:
+            self._writer.close()
+
+    def _forward(self, method: str, args: tuple, samples: int) -> None:
+        if self._writer is None:
+            self._held.append((method, args))
+            self._held_samples += samples
+            self._first_at = self._first_at or time.monotonic()
+            waited = time.monotonic() - self._first_at
+            if self.pipeline.schema is None or (
+                    self.pipeline.rate() is None and waited < RATE_WAIT_LIMIT_S
+                    and self._held_samples < MAX_BUFFERED_SAMPLES):
+                return
+            self._open()
+            return
+        getattr(self._writer, method)(*args)
+
+    def _open(self) -> None:
+        from replay.writer import RecordingWriter
+
+        rate = self.pipeline.rate()
+        self._writer = RecordingWriter(
+            self.path, self.pipeline.schema, self.pipeline.source.describe(),
+            rate[0] if rate else None, rate[1] if rate else None, self.chain_text,
+            force=self.force)
+        held, self._held = self._held, []
+        for method, args in held:
+            getattr(self._writer, method)(*args)
