@@ -208,7 +208,9 @@ class SyncFramer:
     check:        optional frame -> bool (e.g. the decoder's CRC check); a frame
                   that fails is counted bad and the search restarts one byte
                   after its sync word, so a false sync word inside garbage or a
-                  corrupt length costs no intact frame behind it.
+                  corrupt length costs no intact frame behind it. A false
+                  sync word inside a frame already counted bad is not counted
+                  again, so one corrupt frame is one bad frame.
     """
 
     def __init__(self, sync_word: bytes = DEFAULT_SYNC_WORD, length_bytes: int = 1,
@@ -235,6 +237,7 @@ class SyncFramer:
         self._stray = b""
         self._failed = False
         self._started = False
+        self._quiet = 0
 
     def feed(self, data: bytes) -> list[bytes]:
         """Frames completed by `data`, without sync word and length, in arrival order."""
@@ -243,6 +246,7 @@ class SyncFramer:
         header = len(sync) + self.length_bytes
         frames: list[bytes] = []
         pos = 0
+        quiet = self._quiet  # a false sync word before this offset lies inside a failed frame
         while True:
             start = buf.find(sync, pos)
             if start < 0:
@@ -260,7 +264,8 @@ class SyncFramer:
                           else not 1 <= length <= self.max_length)
             if bad_length:
                 expected = self.frame_length or f"1..{self.max_length}"
-                self._fail(buf[start:start + header], f"length {length}, expected {expected}")
+                self._fail(buf[start:start + header], f"length {length}, expected {expected}",
+                           start < quiet)
                 self._skip(buf[start:start + 1])
                 pos = start + 1
                 continue
@@ -270,7 +275,8 @@ class SyncFramer:
                 break
             frame = buf[start + header:end]
             if self.check is not None and not self.check(frame):
-                self._fail(frame, "checksum mismatch")
+                self._fail(frame, "checksum mismatch", start < quiet)
+                quiet = max(quiet, end)
                 self._skip(buf[start:start + 1])
                 pos = start + 1
                 continue
@@ -278,6 +284,7 @@ class SyncFramer:
             frames.append(frame)
             pos = end
         self._buffer = buf[pos:]
+        self._quiet = max(0, quiet - pos)
         return frames
 
     def _skip(self, stray: bytes) -> None:
@@ -285,20 +292,26 @@ class SyncFramer:
             self.garbage_bytes += len(stray)
             self._stray = (self._stray + stray)[-200:]
 
-    def _fail(self, frame: bytes, reason: str) -> None:
-        self.bad.add(frame, reason)
+    def _fail(self, frame: bytes, reason: str, inside_failed: bool) -> None:
+        """Count a failed frame, unless it starts inside one already counted."""
+        if not inside_failed:
+            self._end_stray_run()
+            self.bad.add(frame, reason)
         self._failed = True
 
     def _good(self) -> None:
-        """A good frame ends a run of stray bytes: count the run once, unless a
-        failed frame already accounts for it or it is the cut tail at port open."""
+        self._end_stray_run()
+        self._failed = False
+
+    def _end_stray_run(self) -> None:
+        """A frame (good or failed) ends a run of stray bytes: count the run once,
+        unless it is the rest of a failed frame or the cut tail at port open."""
         if self._stray and not self._failed:
             if self._started:
                 self.bad.add(self._stray, "stray bytes before a sync word")
             else:
                 self.skipped_start += 1
         self._stray = b""
-        self._failed = False
         self._started = True
 
 

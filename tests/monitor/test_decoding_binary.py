@@ -136,3 +136,12 @@ def test_layout_sizes_match_struct():
     for layout in ["<HI8f", ">b2xhq", "<?e3d", "<10H"]:
         _, items = parse_layout(layout)
         assert items[-1][1] + items[-1][2] == struct.calcsize(layout)
+
+
+def test_bench_part_runs_quick_and_decodes_every_frame():
+    from monitor.bench.binary import run
+
+    metrics = run(quick=True)
+    assert set(metrics) >= {"binary_decode_mb_per_s", "binary_reference_mb_per_s",
+                            "binary_ratio", "binary_ok"}
+    assert metrics["binary_decode_mb_per_s"] > 0 and metrics["binary_ratio"] > 0

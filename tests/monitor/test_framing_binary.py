@@ -147,7 +147,9 @@ def test_sync_framer_resynchronises_after_garbage_and_false_sync():
     for i in range(0, len(wire), 5):
         got += framer.feed(wire[i:i + 5])
     assert got == [frame] * 3
-    assert framer.bad.count == 1  # the false frame, not again as stray bytes
+    # the stray byte before the false sync word, then the false frame; the rest
+    # of the false frame is not counted again as stray bytes
+    assert framer.bad.count == 2
     assert framer.bad.last_reason == "checksum mismatch"
 
 
@@ -174,3 +176,12 @@ def test_make_framer_refuses_unknown_names():
         make_framer("hdlc")
     with pytest.raises(ValueError, match="length_bytes"):
         SyncFramer(length_bytes=3)
+
+
+def test_sync_framer_counts_a_corrupt_frame_once_even_with_false_syncs_inside():
+    frame = b"\x01\x02" + b"\xa5\x5a\x10" + bytes(11)    # holds a sync word and length 16
+    corrupt = b"\x01\x03" + frame[2:]
+    framer = SyncFramer(frame_length=16, check=frame.__eq__)
+    wire = sync_encode(frame) + sync_encode(corrupt) + sync_encode(frame)
+    assert framer.feed(wire[:20]) + framer.feed(wire[20:]) == [frame, frame]
+    assert framer.bad.count == 1
