@@ -188,11 +188,14 @@ def check_record_path(path: str, force: bool = False) -> None:
 
 
 def start_recording(pipeline: Any, path: str, chain_text: str | None = None,
-                    force: bool = False) -> Any:
-    """The StartRecording command for a recording of `pipeline`'s stream to `path`."""
+                    force: bool = False, **writer_options: Any) -> Any:
+    """The StartRecording command for a recording of `pipeline`'s stream to `path`.
+
+    writer_options: more RecordingWriter keywords (with_filtered, limit_bytes, limit_seconds).
+    """
     from monitor.pipeline import StartRecording
 
-    return StartRecording(DeferredRecording(pipeline, path, chain_text, force))
+    return StartRecording(DeferredRecording(pipeline, path, chain_text, force, **writer_options))
 
 
 class DeferredRecording:
@@ -203,8 +206,10 @@ class DeferredRecording:
     MAX_BUFFERED_SAMPLES, at most RATE_WAIT_LIMIT_S) until the rate is known.
     """
 
-    def __init__(self, pipeline: Any, path: str, chain_text: str | None, force: bool) -> None:
+    def __init__(self, pipeline: Any, path: str, chain_text: str | None, force: bool,
+                 **writer_options: Any) -> None:
         self.pipeline = pipeline
+        self.writer_options = writer_options
         self.path = path
         self.chain_text = chain_text
         self.force = force
@@ -246,7 +251,7 @@ class DeferredRecording:
         self._writer = RecordingWriter(
             self.path, self.pipeline.schema, self.pipeline.source.describe(),
             rate[0] if rate else None, rate[1] if rate else None, self.chain_text,
-            force=self.force)
+            force=self.force, **self.writer_options)
         held, self._held = self._held, []
         for method, args in held:
             getattr(self._writer, method)(*args)
