@@ -1,15 +1,211 @@
-"""`tunetrace design`."""
+"""`tunetrace design CHAIN --rate HZ`: coefficients, response, lag and warnings of a chain.
+
+Per stage: kind, derived values, coefficients, a response table at standard
+points, the lag at the analysis frequency and the warnings; then the same
+analysis for each channel's whole chain. Plain text for an 80-column terminal,
+or one JSON object with --json. numpy, scipy and filters are imported in run().
+"""
 
 from __future__ import annotations
 
 import argparse
+import json
+import math
+import textwrap
+from typing import Any
 
+from monitor.commands.common import channel_list, positive_float
 from monitor.errors import UserError
+
+OTHER_CHANNELS = "other channels"
+CAUTION = ("Caution: a filter adds lag and can hide faults; where the filtered signal feeds "
+           "a control loop or a safety decision, validate on the real system and follow the "
+           "applicable standards and local practice.")
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    pass
+    parser.add_argument("chain", metavar="CHAIN", help="chain file (TOML)")
+    parser.add_argument("--rate", type=positive_float, metavar="HZ",
+                        help="sample rate to design for (default: the chain file's rate_hz)")
+    parser.add_argument("--json", action="store_true", help="print one JSON object")
+    parser.add_argument("--at", type=float, metavar="HZ",
+                        help="frequency for the lag figures (default: the first cutoff or "
+                             "centre of the chain, else 1 Hz)")
+    parser.add_argument("--channels", type=channel_list, metavar="NAMES",
+                        help="channels to analyse, comma separated (default: those the chain "
+                             "names, plus 'other channels' when a stage selects every channel)")
+
+
+def channels_of(spec: Any) -> list[str]:
+    """Channel names the chain names in file order, plus OTHER_CHANNELS for unselective stages."""
+    names: list[str] = []
+    for stage in spec.stages:
+        for name in stage.channels or ():
+            if name not in names:
+                names.append(name)
+    if not names or any(stage.channels is None for stage in spec.stages):
+        names.append(OTHER_CHANNELS)
+    return names
+
+
+def _stages_for(spec: Any, channel: str) -> list[int]:
+    if channel == OTHER_CHANNELS:
+        return [i for i, s in enumerate(spec.stages) if s.channels is None]
+    return [i for i, _ in spec.stages_for(channel)]
 
 
 def run(args: argparse.Namespace) -> int:
-    raise UserError("'tunetrace design' is not built yet.", exit_code=1)
+    from filters.analysis import reference_hz
+    from filters.design import design_stage
+    from filters.reports import chain_report, stage_report
+    from monitor.commands.common import load_chain_file
+
+    spec = load_chain_file(args.chain)
+    if args.rate is not None:
+        rate, origin = float(args.rate), "--rate"
+    elif spec.rate_hz is not None:
+        rate, origin = float(spec.rate_hz), "the chain file's rate_hz"
+    else:
+        raise UserError(f"{args.chain} has no rate_hz and no --rate was given; give --rate HZ "
+                        f"or add rate_hz to the chain file.")
+    designs = []
+    for number, stage in enumerate(spec.stages, start=1):
+        try:
+            designs.append(design_stage(stage, rate))
+        except ValueError as exc:
+            raise UserError(f"{args.chain}: stage {number} ({stage.kind}): "
+                            f"{str(exc).rstrip('.')}.") from None
+    at = _analysis_frequency(args.at, designs, rate, reference_hz)
+    stage_reports = [stage_report(d, at, index=i) for i, d in enumerate(designs)]
+    channels = list(args.channels) if args.channels else channels_of(spec)
+    chains = []
+    for channel in channels:
+        indices = [i for i in _stages_for(spec, channel) if not spec.stages[i].bypass]
+        chains.append(chain_report(channel, [(i, designs[i]) for i in indices], rate, at))
+    if args.json:
+        print(json.dumps(_json(args.chain, rate, origin, at, spec, stage_reports, chains),
+                         allow_nan=False))
+    else:
+        print(_text(args.chain, rate, origin, at, spec, stage_reports, chains))
+    return 0
+
+
+def _analysis_frequency(given: float | None, designs: list, rate: float, reference) -> float:
+    nyquist = rate / 2
+    if given is None:
+        ref = reference(designs) if designs else None
+        return ref if ref is not None and ref < nyquist else min(1.0, nyquist / 2)
+    if not (math.isfinite(given) and 0 <= given < nyquist):
+        raise UserError(f"--at {given:g} is outside the allowed range 0 <= HZ < {nyquist:g} "
+                        f"(the Nyquist frequency at {rate:g} Hz).")
+    return given
+
+
+def _json(path: str, rate: float, origin: str, at: float, spec: Any, stages: list,
+          chains: list) -> dict[str, object]:
+    out_stages = []
+    for report in stages:
+        entry = report.to_dict()
+        stage = spec.stages[report.index]
+        entry.update(number=report.index + 1, bypass=stage.bypass, start=stage.start,
+                     channels=None if stage.channels is None else list(stage.channels))
+        out_stages.append(entry)
+    return {"chain": path, "rate_hz": rate, "rate_origin": origin, "at_hz": at,
+            "stages": out_stages, "channels": [c.to_dict() for c in chains], "caution": CAUTION}
+
+
+def _g(value: float | None, digits: int = 4) -> str:
+    if value is None:
+        return "-"
+    if math.isinf(value):
+        return "-inf" if value < 0 else "inf"
+    return f"{value:.{digits}g}"
+
+
+def _db(value: float | None) -> str:
+    if value is None or math.isinf(value):
+        return _g(value)
+    return f"{round(value, 2) + 0.0:.2f}"
+
+
+def _wrapped(prefix: str, text: str) -> list[str]:
+    return textwrap.wrap(text, width=80, initial_indent=prefix,
+                         subsequent_indent=" " * len(prefix))
+
+
+def _derived_line(derived: dict[str, float]) -> str:
+    return ", ".join(f"{k} {_g(v, 6)}" for k, v in derived.items())
+
+
+def _coefficient_lines(report) -> list[str]:
+    d = report.design
+    if d.sos is not None:
+        lines = []
+        for n, row in enumerate(d.sos, start=1):
+            lines.append(f"  section {n}  b = [{', '.join(f'{v:.12g}' for v in row[:3])}]")
+            lines.append(f"{'':13}a = [{', '.join(f'{v:.12g}' for v in row[3:])}]")
+        return lines
+    if d.fir is not None:
+        if len(set(d.fir.tolist())) == 1:
+            return [f"  fir: {len(d.fir)} taps, each {d.fir[0]:.12g} (ones(N)/N)"]
+        return ["  fir: " + ", ".join(f"{v:.12g}" for v in d.fir)]
+    if d.kind == "median":
+        return ["  no coefficients: a running median (not linear)"]
+    return [f"  y = {d.params['scale']:g} * x + {d.params['offset']:g}"]
+
+
+def _table_lines(costs, with_analog: bool) -> list[str]:
+    head = f"  {'Hz':>10}  {'gain dB':>9}  {'phase deg':>10}"
+    lines = [head + (f"  {'analog dB':>9}" if with_analog else "")]
+    for row in costs.table:
+        line = f"  {row.freq_hz:>10.4g}  {_db(row.mag_db):>9}  {row.phase_deg:>10.1f}"
+        if with_analog:
+            line += f"  {_db(row.analog_db):>9}"
+        lines.append(line)
+    return lines
+
+
+def _cost_lines(costs) -> list[str]:
+    edges = ", ".join(f"{f:.4g}" for f in costs.minus3db_hz)
+    edges = f"-3 dB at {edges} Hz" if edges else "-3 dB: none (flat)"
+    noise = ("not linear" if costs.noise_gain is None
+             else f"{costs.noise_gain:.4g} ({_g(costs.noise_gain_db, 3)} dB)")
+    return [
+        f"  at {costs.at_hz:g} Hz: group delay {costs.group_delay_ms:.3g} ms, phase lag "
+        f"{costs.phase_lag_deg:.1f} deg ({costs.phase_delay_ms:.3g} ms)",
+        f"  {edges}; DC gain {_g(costs.dc_gain, 6)}; settles to 2 % in "
+        f"{costs.settling_s:.3g} s",
+        f"  noise gain {noise}; stability margin {costs.stability_margin:.4g}",
+    ]
+
+
+def _text(path: str, rate: float, origin: str, at: float, spec: Any, stages: list,
+          chains: list) -> str:
+    out = [f"chain {path}", f"rate {rate:g} Hz (from {origin}); lag figures at {at:g} Hz", ""]
+    for report in stages:
+        stage = spec.stages[report.index]
+        d = report.design
+        flags = [f"channels {', '.join(stage.channels)}" if stage.channels else "all channels"]
+        if stage.bypass:
+            flags.append("BYPASSED")
+        if "method" in d.params:
+            flags.append(f"method {d.params['method']}")
+        out.append(f"stage {report.index + 1}: {d.kind} ({'; '.join(flags)})")
+        out += _wrapped("  ", _derived_line(d.derived))
+        out += _coefficient_lines(report)
+        out += _table_lines(report.costs, d.analog_zpk is not None)
+        out += _cost_lines(report.costs)
+        for warning in d.warnings:
+            out += _wrapped("  warning: ", warning)
+        out.append("")
+    for chain in chains:
+        stages_text = (", ".join(f"{i + 1} {k}" for i, k in zip(chain.stage_indices, chain.kinds,
+                                                               strict=True)) or "no stages")
+        out.append(f"channel {chain.channel}: {stages_text}")
+        out += _table_lines(chain.costs, False)
+        out += _cost_lines(chain.costs)
+        for note in chain.notes:
+            out += _wrapped("  note: ", note)
+        out.append("")
+    out += _wrapped("", CAUTION)
+    return "\n".join(out)
