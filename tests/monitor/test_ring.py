@@ -1,0 +1,107 @@
+"""Ring: capacity, wrap-around, totals, memory formula, and no torn copies under a live writer."""
+
+from __future__ import annotations
+
+import threading
+
+import numpy as np
+import pytest
+
+from monitor.ring import DEFAULT_RING_CAPACITY, Ring, ring_bytes
+
+
+def rows(start: int, n: int, channels: int):
+    """Rows whose every value encodes its absolute index, to detect torn copies."""
+    idx = np.arange(start, start + n, dtype=np.float64)
+    raw = idx[:, None] + np.arange(channels) / 10.0
+    return idx, raw, -raw
+
+
+def check_consistent(snap, channels: int) -> None:
+    idx = snap.t_host
+    assert np.all(np.diff(idx) == 1.0), "rows not consecutive"
+    if len(snap):
+        assert idx[-1] == snap.total - 1
+    np.testing.assert_array_equal(snap.raw, idx[:, None] + np.arange(channels) / 10.0)
+    np.testing.assert_array_equal(snap.filtered, -snap.raw)
+
+
+def test_empty_ring_gives_empty_snapshot():
+    ring = Ring(3, 10)
+    snap = ring.latest(5)
+    assert len(snap) == 0 and snap.raw.shape == (0, 3) and snap.total == 0
+
+
+def test_latest_before_and_after_wrap():
+    ring = Ring(2, 10)
+    ring.write(*rows(0, 4, 2))
+    snap = ring.latest(100)
+    assert snap.t_host.tolist() == [0, 1, 2, 3]
+    for start in range(4, 37, 3):
+        ring.write(*rows(start, 3, 2))
+    assert ring.total == 37
+    snap = ring.latest(10)
+    assert snap.t_host.tolist() == list(range(27, 37))
+    check_consistent(snap, 2)
+    assert ring.latest(4).t_host.tolist() == [33, 34, 35, 36]
+
+
+def test_block_larger_than_capacity_keeps_newest():
+    ring = Ring(1, 5)
+    ring.write(*rows(0, 12, 1))
+    assert ring.total == 12
+    assert ring.latest(5).t_host.tolist() == [7, 8, 9, 10, 11]
+
+
+def test_wrong_shapes_refused():
+    ring = Ring(2, 5)
+    with pytest.raises(ValueError, match="expected"):
+        ring.write(np.zeros(3), np.zeros((3, 1)), np.zeros((3, 1)))
+    with pytest.raises(ValueError, match="capacity"):
+        Ring(2, 0)
+    with pytest.raises(ValueError, match="channels"):
+        Ring(0, 5)
+
+
+def test_memory_formula_and_default_capacity():
+    ring = Ring(8, 1000)
+    assert ring.nbytes == (2 * 8 + 1) * 8 * 1000
+    assert ring_bytes(8, 1000) == ring._t.nbytes + ring._raw.nbytes + ring._filtered.nbytes
+    assert DEFAULT_RING_CAPACITY >= 10 * 60 * 1000      # 10 minutes at 1 kHz
+
+
+def test_no_torn_copies_under_a_concurrent_writer():
+    channels, capacity = 4, 997
+    ring = Ring(channels, capacity)
+    stop = threading.Event()
+    errors: list[BaseException] = []
+
+    def writer() -> None:
+        start = 0
+        sizes = [1, 7, 64, 300, 996, 2000]
+        i = 0
+        while not stop.is_set():
+            n = sizes[i % len(sizes)]
+            ring.write(*rows(start, n, channels))
+            start += n
+            i += 1
+
+    def reader() -> None:
+        try:
+            for i in range(3000):
+                snap = ring.latest([capacity, 10, 500, 1][i % 4])
+                check_consistent(snap, channels)
+        except BaseException as exc:  # reported in the main thread
+            errors.append(exc)
+
+    w = threading.Thread(target=writer)
+    readers = [threading.Thread(target=reader) for _ in range(2)]
+    w.start()
+    for r in readers:
+        r.start()
+    for r in readers:
+        r.join(60)
+    stop.set()
+    w.join(10)
+    assert not errors, errors[0]
+    assert ring.total > capacity * 10               # the writer really wrapped many times
