@@ -1,0 +1,217 @@
+"""The plot: time lanes, spectrum and response on one vispy SceneCanvas.
+
+PlotCanvas draws from a History (the plot's copy of the newest samples).
+The live window and the headless snapshot both use it; only how frames are
+paced and shown differs. Call it from one thread (the one that made it).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from monitor.canvas import palette
+from monitor.canvas.decimate import BucketCache, pack_every, pack_minmax, samples_per_bucket
+from monitor.canvas.history import History
+from monitor.canvas.layout import compute_layout
+from monitor.canvas.marks import Marks, flat_2d
+from monitor.canvas.response_panel import ResponsePanel, chain_curves, stage_markers
+from monitor.canvas.spectrum_panel import MAX_SEGMENTS, NPERSEG, SpectrumPanel, welch_db
+from monitor.canvas.time_panel import TimePanel
+
+SPECTRUM_SAMPLES = (MAX_SEGMENTS + 1) * NPERSEG // 2
+
+
+@dataclass
+class ViewState:
+    """What the user chose to see.
+
+    window_s: rolling window length (s); following: the view tracks the newest
+    sample and autoscales (False after a mouse zoom/pan or a freeze);
+    selected: channel index of the spectrum and response; decimate: min/max
+    per pixel column (False draws every sample, the benchmark's reference).
+    """
+
+    window_s: float = 10.0
+    following: bool = True
+    frozen: bool = False
+    overlay: bool = False
+    selected: int = 0
+    decimate: bool = True
+    cursor: tuple[float, float] | None = field(default=None)
+
+
+class PlotCanvas:
+    """Three panels for `channels` (names) with `units`, sampled at `rate_hz`, on a SceneCanvas.
+
+    size: (width, height) px. show: open as a window (needs the window backend).
+    """
+
+    def __init__(self, channels: Sequence[str], units: Sequence[str], rate_hz: float,
+                 size: tuple[int, int] = (1280, 800), show: bool = False,
+                 title: str = "tunetrace", overlay: bool = False, app=None) -> None:
+        from vispy import scene
+
+        if not rate_hz > 0:
+            raise ValueError(f"rate_hz = {rate_hz!r} must be a positive number of Hz")
+        self.channels = tuple(channels)
+        self.units = tuple(units) + ("",) * (len(self.channels) - len(units))
+        self.rate_hz = float(rate_hz)
+        self.title = title
+        self.canvas = scene.SceneCanvas(size=size, show=show, title=title, keys=None,
+                                        bgcolor=palette.GROUND, app=app, resizable=False)
+        self.size = (int(size[0]), int(size[1]))
+        self._populate(overlay)
+
+    def _populate(self, overlay: bool) -> None:
+        """Create the panels' visuals for the current channels and overlay choice."""
+        self.layout = compute_layout(self.size, 1 if overlay else len(self.channels))
+        self.overlay = overlay
+        self._backgrounds()
+        self.time = TimePanel(self.canvas.scene, self.layout.lanes, self.channels, self.units,
+                              overlay=overlay)
+        self.spectrum = SpectrumPanel(self.canvas.scene, self.layout.spectrum, self.rate_hz)
+        self.response = ResponsePanel(self.canvas.scene, self.layout.magnitude,
+                                      self.layout.phase, self.rate_hz)
+        self.marks = Marks(self.canvas.scene)
+        self.cache = BucketCache()
+        self.status = ""
+        self.readout = ""
+        self.window: tuple[int, int] = (0, 0)   # absolute sample indices shown
+
+    def rebuild(self, channels: Sequence[str], units: Sequence[str] | None = None,
+                overlay: bool | None = None) -> None:
+        """Replace every panel (new channels, or lanes <-> overlay) in the same canvas."""
+        for child in list(self.canvas.scene.children):
+            child.parent = None
+        self.channels = tuple(channels)
+        units = tuple(units) if units is not None else self.units
+        self.units = units[:len(self.channels)] + ("",) * (len(self.channels) - len(units))
+        self._populate(self.overlay if overlay is None else overlay)
+
+    def set_rate(self, rate_hz: float) -> None:
+        """Adopt a new sample rate (the frequency axes change; call show_spectrum/response)."""
+        if not rate_hz > 0:
+            raise ValueError(f"rate_hz = {rate_hz!r} must be a positive number of Hz")
+        self.rate_hz = float(rate_hz)
+        self.spectrum.set_rate(self.rate_hz)
+        self.response.set_rate(self.rate_hz)
+
+    def _backgrounds(self) -> None:
+        from vispy.scene import visuals
+
+        rects = [*self.layout.lanes, self.layout.spectrum, self.layout.magnitude,
+                 self.layout.phase]
+        verts, faces = [], []
+        for i, r in enumerate(rects):
+            verts += [(r.x, r.y), (r.x + r.w, r.y), (r.x + r.w, r.y + r.h), (r.x, r.y + r.h)]
+            faces += [(4 * i, 4 * i + 1, 4 * i + 2), (4 * i, 4 * i + 2, 4 * i + 3)]
+        mesh = visuals.Mesh(vertices=np.array(verts, np.float32),
+                            faces=np.array(faces, np.uint32), color=palette.PANEL,
+                            parent=self.canvas.scene)
+        mesh.order = -3
+        flat_2d(mesh)
+
+    # -- data ---------------------------------------------------------------------------
+
+    def show_traces(self, history: History, state: ViewState) -> None:
+        """Put the visible part of `history` into the time lanes (decimated unless told not)."""
+        if not len(history):
+            return
+        origin = history.origin or 0.0
+        t_newest = float(history.slice(history.end - 1, history.end)[0][0]) - origin
+        self.time.newest_x = t_newest
+        if state.following:
+            x0, x1 = t_newest - state.window_s, t_newest
+        else:
+            x0, x1 = self.time.lanes[0].range[:2]
+        i0, i1 = history.index_at(x0), history.index_at(x1 + 1e-9)
+        i0 = max(history.start, i0 - 1)   # one sample before the edge keeps the line entering
+        i1 = min(history.end, i1 + 1)
+        self.window = (i0, i1)
+        k = len(self.channels)
+        if state.decimate:
+            spb = samples_per_bucket(i1 - i0, self.layout.lanes[0].w)
+            x, mins, maxs = self.cache.update(history, i0, i1, spb, origin)
+            verts = pack_minmax(x, mins, maxs)
+            lo, hi = (np.fmin.reduce(mins, axis=0), np.fmax.reduce(maxs, axis=0)) if len(x) \
+                else (np.full(2 * k, np.nan), np.full(2 * k, np.nan))
+        else:
+            t, values = history.slice(i0, i1)
+            verts = pack_every(t - origin, values)
+            lo, hi = np.fmin.reduce(values, axis=0), np.fmax.reduce(values, axis=0)
+        self.time.set_traces(verts[:k], verts[k:])
+        if state.following:
+            extremes = np.column_stack([np.fmin(lo[:k], lo[k:]), np.fmax(hi[:k], hi[k:])])
+            self.time.set_view(x0, x1, extremes)
+
+    def show_spectrum(self, history: History, selected: int, designs: Sequence) -> None:
+        """Welch PSD of the selected channel over the visible window (its newest part)."""
+        i0, i1 = self.window
+        _, values = history.slice(max(i0, i1 - SPECTRUM_SAMPLES), i1)
+        k = len(self.channels)
+        freqs, db = welch_db(values[:, [selected, k + selected]], self.rate_hz)
+        name = self.channels[selected]
+        unit = self.units[selected] or "unit"
+        title = f"spectrum of {name}: Welch PSD, dB re 1 {unit}²/Hz"
+        self.spectrum.set_data(freqs, db[:, 0], db[:, 1], selected, title, stage_markers(designs))
+
+    def show_response(self, selected: int, designs: Sequence) -> None:
+        """Magnitude and phase of the selected channel's active stage designs."""
+        name = self.channels[selected]
+        what = f"{len(designs)} stage{'s' if len(designs) != 1 else ''}" if designs else "no stages"
+        self.response.set_curves(chain_curves(designs, self.rate_hz), selected,
+                                 f"response of {name}'s chain ({what}): |H| dB, phase °",
+                                 stage_markers(designs))
+
+    # -- annotation and output -------------------------------------------------------------
+
+    def cursor_text(self, history: History, px: float, py: float) -> str:
+        """Readout of time and values under canvas pixel (px, py) in a lane, else ''."""
+        lane = self.time.lane_at(px, py)
+        if lane is None or not len(history):
+            return ""
+        x, _ = self.time.lanes[lane].to_data(px, py)
+        index = min(history.index_at(x), history.end - 1)
+        t, values = history.slice(index, index + 1)
+        if not len(t):
+            return ""
+        k = len(self.channels)
+        age = (t[0] - (history.origin or 0.0)) - self.time.newest_x
+        parts = [f"t {age:+.3f} s"]
+        for c in self.time.channels_in(lane):
+            unit = f" {self.units[c]}" if self.units[c] else ""
+            parts.append(f"{self.channels[c]} raw {values[0, c]:.5g}{unit} "
+                         f"filtered {values[0, k + c]:.5g}{unit}")
+        return "   ".join(parts)
+
+    def decorate(self, selected: int, cursor: tuple[float, float] | None = None) -> None:
+        """Grid, ticks, titles, markers, status and readout for the data now shown."""
+        marks = self.marks
+        marks.begin()
+        self.time.decorate(marks, selected)
+        self.spectrum.decorate(marks)
+        self.response.decorate(marks)
+        header = self.layout.header
+        marks.label(self.title, 8, header.h / 2, anchor="left", colour=palette.TEXT)
+        if self.status:
+            marks.label(self.status, header.w - 8, header.h / 2, anchor="right")
+        if cursor is not None and self.time.lane_at(*cursor) is not None:
+            top, bottom = self.layout.lanes[0], self.layout.lanes[-1]
+            marks.mark(cursor[0], top.y, cursor[0], bottom.y + bottom.h, palette.READOUT)
+            if self.readout:
+                marks.label(self.readout, header.w / 2 - 120, header.h / 2, anchor="left",
+                            colour=palette.READOUT)
+        marks.flush()
+
+    def render(self) -> np.ndarray:
+        """Draw offscreen and read back: (H, W, 4) uint8, alpha forced opaque."""
+        image = np.array(self.canvas.render())
+        image[..., 3] = 255
+        return image
+
+    def close(self) -> None:
+        self.canvas.close()
+
