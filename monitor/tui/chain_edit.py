@@ -206,3 +206,22 @@ def copy_chain(spec: ChainSpec, source: str, targets: Sequence[str],
         else:
             stages.append(replace(stage, channels=_selection(names, channels)))
     return _with_stages(spec, stages)
+
+
+def starting_params(kind: str, rate_hz: float) -> dict[str, Any]:
+    """Parameters a newly added stage starts from, so that it designs at `rate_hz`.
+
+    These are only a starting point for the user to edit: cutoffs at a tenth of
+    Nyquist, Q of a Butterworth pair (1/sqrt 2), order 2, a 5-sample window.
+    """
+    nyquist = rate_hz / 2
+    cutoff = round(nyquist / 10, 3)
+    by_key: dict[str, Any] = {
+        "cutoff_hz": cutoff, "centre_hz": cutoff, "freq_hz": cutoff, "q": 0.7071,
+        "order": 2, "low_hz": round(cutoff / 2, 3), "high_hz": round(cutoff * 2, 3),
+        "ripple_db": 1.0, "window": 5, "alpha": 0.1, "time_constant_s": round(10 / rate_hz, 4),
+    }
+    info = KINDS[kind]
+    if not info.alternatives:
+        return {}
+    return {key: by_key[key] for key in info.alternatives[0]}

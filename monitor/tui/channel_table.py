@@ -8,10 +8,10 @@ from dataclasses import dataclass
 
 from textual.widgets import DataTable
 
-COLUMNS: tuple[tuple[str, str], ...] = (
-    ("channel", "channel"), ("unit", "unit"), ("last", "last"), ("mean", "mean"),
-    ("rms_raw", "RMS raw"), ("rms_filtered", "RMS filt"), ("reduction_db", "NR dB"),
-    ("lag_ms", "lag ms"), ("rate_hz", "rate Hz"),
+COLUMNS: tuple[tuple[str, str, int], ...] = (
+    ("channel", "channel", 12), ("unit", "unit", 5), ("last", "last", 11), ("mean", "mean", 11),
+    ("rms_raw", "RMS raw", 10), ("rms_filtered", "RMS filt", 10), ("reduction_db", "NR dB", 7),
+    ("lag_ms", "lag ms", 8), ("rate_hz", "rate Hz", 8),
 )
 
 
@@ -36,9 +36,11 @@ class ChannelRow:
 
 
 def _number(value: float, digits: int = 5) -> str:
+    """At most about 10 characters: plain digits where they fit, else scientific."""
     if value is None or not math.isfinite(value):
         return "-"
-    return f"{value:.{digits}g}"
+    text = f"{value:.{digits}g}"
+    return text if len(text) <= 10 else f"{value:.{max(digits - 2, 1)}e}"
 
 
 def row_cells(row: ChannelRow) -> tuple[str, ...]:
@@ -64,8 +66,8 @@ class ChannelTable(DataTable):
         self._names: tuple[str, ...] = ()
 
     def on_mount(self) -> None:
-        for key, label in COLUMNS:
-            self.add_column(label, key=key)
+        for key, label, width in COLUMNS:
+            self.add_column(label, key=key, width=width)
         self.border_title = "channels"
 
     @property
@@ -82,5 +84,5 @@ class ChannelTable(DataTable):
             self._names = names
             return
         for r in rows:
-            for (key, _), cell in zip(COLUMNS, row_cells(r), strict=True):
+            for (key, _, _), cell in zip(COLUMNS, row_cells(r), strict=True):
                 self.update_cell(r.name, key, cell)

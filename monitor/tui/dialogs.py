@@ -70,7 +70,9 @@ class AskValue(ModalScreen[str | None]):
 class PickKind(ModalScreen[str | None]):
     """Choose the kind of a new stage from the list of kinds with their summaries."""
 
-    DEFAULT_CSS = DIALOG_CSS.format(name="PickKind")
+    DEFAULT_CSS = DIALOG_CSS.format(name="PickKind") + """
+    PickKind > Vertical { width: 110; }
+    """
     BINDINGS = [Binding("escape", "cancel", "cancel")]
 
     def compose(self) -> ComposeResult:

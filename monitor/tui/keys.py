@@ -46,7 +46,8 @@ ACTIONS: tuple[KeyAction, ...] = (
               True),
     KeyAction("question_mark", "show_help", "keys", "Show this list of keys.", VIEW, True),
     KeyAction("space", "toggle_view_pause", "hold view",
-              "Hold the whole view still; data, filtering and recording go on.", VIEW, True),
+              "Hold the view still (a recording: pause playback); reading, filtering and "
+              "recording go on.", VIEW, True),
     KeyAction("f", "toggle_trace_freeze", "freeze trace",
               "Freeze the trace only; the channel table keeps updating.", VIEW),
     KeyAction("minus", "trace_window(-1)", "shorter window",
@@ -86,8 +87,6 @@ ACTIONS: tuple[KeyAction, ...] = (
     KeyAction("l", "load_chain", "load chain",
               "Load a chain file; a malformed one is refused and the running chain goes on.",
               FILES),
-    KeyAction("p", "toggle_playback", "play/pause", "Pause or resume playback of a recording.",
-              REPLAY),
     KeyAction("t", "ask_seek", "seek", "Jump to a time (s) in the recording.", REPLAY),
     KeyAction("v", "ask_speed", "speed", "Set the playback speed (a factor, or max).", REPLAY),
 )

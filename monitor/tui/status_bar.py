@@ -20,7 +20,7 @@ class UiState:
     """What the UI adds to the pipeline's status line.
 
     notice:  one-shot sentence (the latest message), or "".
-    held / frozen: view hold and trace freeze flags.
+    frozen: the trace is frozen (the view hold is the pipeline's `paused`).
     window_s: trace time window in seconds.
     analysis_hz: frequency at which lag is reported.
     scope: "channel" or "shared" (how chain edits apply).
@@ -28,13 +28,12 @@ class UiState:
     """
 
     notice: str = ""
-    held: bool = False
     frozen: bool = False
     window_s: float = 5.0
     analysis_hz: float = 1.0
     scope: str = "channel"
     recording_started: float | None = None
-    sticky: list[str] = field(default_factory=list)
+    sticky: list[str] = field(default_factory=list)   # notes shown while they hold
 
 
 def human_size(n_bytes: int) -> str:
@@ -80,10 +79,8 @@ def status_lines(status: Any, ui: UiState) -> tuple[str, str]:
              f"frames {status.frames}  bad {status.bad}  dropped {status.dropped}")
     if getattr(status, "ring_overflow", 0):
         line1 += f"  overflow {status.ring_overflow}"
-    if status.paused:
-        line1 += "  PAUSED"
     flags = []
-    if ui.held:
+    if status.paused:
         flags.append("VIEW HELD")
     if ui.frozen:
         flags.append("TRACE FROZEN")

@@ -26,7 +26,7 @@ class TraceView(Widget):
     """
 
     DEFAULT_CSS = """
-    TraceView { height: 1fr; min-height: 6; border: round #3a4a5c; padding: 0 0; }
+    TraceView { width: 1fr; height: 1fr; min-height: 6; border: round #3a4a5c; padding: 0 0; }
     """
 
     def __init__(self, *, id: str | None = None) -> None:
@@ -65,13 +65,14 @@ class TraceView(Widget):
             _append_runs(text, row, owner[r])
             text.append("\n")
         span = float(self._t[-1] - self._t[0]) if len(self._t) > 1 else 0.0
-        footer = f"{'':{LABEL_WIDTH}}-{span:.3g} s"
-        text.append(footer, style=AXIS_STYLE)
-        text.append(" " * max(width - len(footer) + LABEL_WIDTH - 3, 1) + "now", style=AXIS_STYLE)
+        left = f"{'':{LABEL_WIDTH}}-{span:.3g} s"
+        text.append(left, style=AXIS_STYLE)
         text.append("   raw ", style=AXIS_STYLE)
-        text.append("\u2800\u28ff", style=RAW_STYLE)
-        text.append(" filtered ", style=AXIS_STYLE)
+        text.append("\u28ff", style=RAW_STYLE)
+        text.append("  filtered ", style=AXIS_STYLE)
         text.append("\u28ff", style=FILTERED_STYLE)
+        used = len(left) + 7 + 1 + 11 + 1
+        text.append(" " * max(LABEL_WIDTH + width - used - 3, 1) + "now", style=AXIS_STYLE)
         return text
 
 

@@ -1,0 +1,352 @@
+"""The tunetrace terminal: every channel at a glance, the selected channel's chain to edit.
+
+Layout (top to bottom): the channel table; the trace of the selected channel
+beside its stage list and parameter form; two status lines; the footer.
+
+Threads: the pipeline's reader thread never waits on the UI. The UI polls
+`ring.latest(n)` and `status()` from timers on textual's event loop (trace at
+10 Hz, table and status at 4 Hz) and talks back only through
+`pipeline.submit(...)`. Edits build and validate the new ChainSet here in the
+UI thread, so a refused edit never reaches the reader.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import os
+from typing import Any
+
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.widgets import Footer, OptionList
+
+from monitor.tui.chain_actions import ChainActions
+from monitor.tui.chain_editor import StageList
+from monitor.tui.channel_table import ChannelRow, ChannelTable
+from monitor.tui.dialogs import ShowText
+from monitor.tui.file_actions import FileActions
+from monitor.tui.help_screen import HelpScreen
+from monitor.tui.keys import ACTIONS, CHANNEL_KEYS
+from monitor.tui.palette import SessionCommands
+from monitor.tui.param_form import FormTarget, ParamForm
+from monitor.tui.session import ChainSession
+from monitor.tui.status_bar import StatusBar, UiState
+from monitor.tui.trace import WINDOWS_S, TraceView
+
+TRACE_HZ = 10.0
+TABLE_HZ = 4.0
+PLOT_HZ = 60.0
+STATS_MAX_S = 10.0           # the table's statistics cover the trace window, at most this long
+DEFAULT_WINDOW_S = 5.0
+DEFAULT_ANALYSIS_HZ = 1.0    # lag is read where a weighing or control band usually lives
+NO_DISPLAY = "no display (DISPLAY is unset): the plot window is not opened"
+
+
+def _bindings() -> list[Binding]:
+    bindings = [Binding(a.keys, a.action, a.title, show=a.footer) for a in ACTIONS]
+    bindings += [Binding(k, f"select_channel({int(k) - 1})", f"channel {k}", show=False)
+                 for k in CHANNEL_KEYS]
+    return bindings
+
+
+class TunetraceApp(ChainActions, FileActions, App[int]):
+    """The live session on one pipeline; `args` are the CLI options of live/demo/replay."""
+
+    TITLE = "tunetrace"
+    CSS = """
+    Screen { layout: vertical; background: #10151c; }
+    #middle { height: 1fr; }
+    #side { width: 62; }
+    """
+    BINDINGS = _bindings()
+    COMMANDS = App.COMMANDS | {SessionCommands}
+
+    def __init__(self, pipeline: Any, args: argparse.Namespace) -> None:
+        super().__init__()
+        self.pipeline = pipeline
+        self.args = args
+        self.session = ChainSession(pipeline)
+        self.ui = UiState(window_s=DEFAULT_WINDOW_S,
+                          analysis_hz=float(getattr(args, "analysis_hz", None)
+                                            or DEFAULT_ANALYSIS_HZ))
+        self.selected = 0
+        self.plot: Any = None
+        self._shown_key: tuple | None = None       # (spec, channel) the chain panel shows
+        self._form_key: tuple | None = None        # (index, stage, rate, sharers) in the form
+        self._last_status: Any = None
+
+    # -- layout -----------------------------------------------------------------------------
+
+    def compose(self) -> ComposeResult:
+        yield ChannelTable(id="channels")
+        with Horizontal(id="middle"):
+            yield TraceView(id="trace")
+            with Vertical(id="side"):
+                yield StageList(id="stages")
+                yield ParamForm(id="form")
+        yield StatusBar(id="status")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.set_interval(1 / TRACE_HZ, self.refresh_trace)
+        self.set_interval(1 / TABLE_HZ, self.refresh_table)
+        duration = getattr(self.args, "duration", None)
+        if duration:
+            self.set_timer(float(duration), self.action_quit_session)
+        self.query_one("#channels", ChannelTable).focus()
+        if os.environ.get("DISPLAY"):
+            self.action_open_plot()
+        else:
+            self.ui.sticky.append(NO_DISPLAY)
+        self.refresh_table()
+
+    # -- what the panels show --------------------------------------------------------------
+
+    @property
+    def channel(self) -> str:
+        channels = self.session.channels
+        return channels[min(self.selected, len(channels) - 1)] if channels else ""
+
+    def _window_samples(self, seconds: float) -> int:
+        ring = self.pipeline.ring
+        rate = self.pipeline.rate()
+        hz = rate[0] if rate else 100.0
+        return max(2, min(int(seconds * hz), ring.capacity if ring is not None else 2))
+
+    def refresh_trace(self) -> None:
+        """10 Hz: the trace, and the chain panel when the running chain changed."""
+        self._sync_chain()
+        ring = self.pipeline.ring
+        if ring is None or self.ui.frozen or not self.session.channels:
+            return
+        snapshot = ring.latest(self._window_samples(self.ui.window_s))
+        if len(snapshot) == 0:
+            return
+        c = min(self.selected, snapshot.raw.shape[1] - 1)
+        unit = self.pipeline.schema.unit(c) if self.pipeline.schema else ""
+        caption = f"{self.channel} [{unit}]  last {self.ui.window_s:g} s" if unit else (
+            f"{self.channel}  last {self.ui.window_s:g} s")
+        self.query_one("#trace", TraceView).show(
+            snapshot.t_host - snapshot.t_host[-1], snapshot.raw[:, c], snapshot.filtered[:, c],
+            caption)
+
+    def refresh_table(self) -> None:
+        """4 Hz: the channel table and the status lines."""
+        status = self.pipeline.status()
+        self._last_status = status
+        self._status_extras(status)
+        self.query_one("#status", StatusBar).show(status, self.ui)
+        ring = self.pipeline.ring
+        if ring is None or not self.session.channels:
+            return
+        from monitor.stats import channel_stats
+
+        snapshot = ring.latest(self._window_samples(min(self.ui.window_s, STATS_MAX_S)))
+        stats = channel_stats(snapshot)
+        schema = self.pipeline.schema
+        rows = []
+        for k, name in enumerate(self.session.channels):
+            s = stats[k] if k < len(stats) else None
+            rows.append(ChannelRow(
+                name=name, unit=schema.unit(k),
+                last=float(snapshot.raw[-1, k]) if s else math.nan,
+                mean=s.mean_raw if s else math.nan,
+                rms_raw=s.noise_raw if s else math.nan,
+                rms_filtered=s.noise_filtered if s else math.nan,
+                reduction_db=s.reduction_db if s else math.nan,
+                lag_ms=self.session.lag_ms(name, self.ui.analysis_hz),
+                rate_hz=status.rate_hz or math.nan,
+            ))
+        self.query_one("#channels", ChannelTable).show(rows)
+
+    def _status_extras(self, status: Any) -> None:
+        notes = [n for n in (status.error, status.chain_note, status.warning) if n]
+        self.ui.sticky = [s for s in self.ui.sticky if s == NO_DISPLAY or s in notes]
+        self.ui.sticky += [n for n in notes if n not in self.ui.sticky]
+        if status.notice and status.notice != getattr(self, "_pipeline_notice", None):
+            self._pipeline_notice = status.notice
+            self.say(status.notice)
+        if not status.recording:
+            self.ui.recording_started = None
+
+    def _sync_chain(self) -> None:
+        self.session.sync()
+        key = (self.session.spec, self.channel, self.session.channels)
+        if key != self._shown_key and self.session.chain is not None:
+            self.show_chain()
+
+    def show_chain(self, highlight: int | None = None) -> None:
+        """Redraw the stage list of the selected channel and the form of its highlighted stage."""
+        stages = self.query_one("#stages", StageList)
+        if highlight is None:
+            highlight = stages.selected_index
+        stages.show(self.session.spec, self.channel, self.session.channels, highlight)
+        self._shown_key = (self.session.spec, self.channel, self.session.channels)
+        self.call_later(self._show_form)
+
+    async def _show_form(self) -> None:
+        from monitor.tui.chain_edit import sharers
+
+        index = self.query_one("#stages", StageList).selected_index
+        form = self.query_one("#form", ParamForm)
+        if index is None or index >= len(self.session.spec.stages):
+            key = None
+            target = None
+        else:
+            try:
+                rate = self.session.rate_hz()
+            except ValueError as exc:
+                self.say(str(exc))
+                return
+            stage = self.session.spec.stages[index]
+            others = sharers(self.session.spec, index, self.channel, self.session.channels)
+            key = (index, stage, rate, others, self.ui.analysis_hz)
+            target = FormTarget(index, stage, rate, others, self.ui.analysis_hz)
+        if key == self._form_key and form.target is not None:
+            return
+        self._form_key = key
+        await form.show(target)
+
+    def on_option_list_option_highlighted(self, event: OptionList.OptionHighlighted) -> None:
+        if event.option_list.id == "stages":
+            self.call_later(self._show_form)
+
+    def on_data_table_row_highlighted(self, event: ChannelTable.RowHighlighted) -> None:
+        if event.data_table.id == "channels" and event.cursor_row != self.selected:
+            self.selected = event.cursor_row
+            self.show_chain()
+            self.refresh_trace()
+
+    # -- applying a chain --------------------------------------------------------------------
+
+    def apply_spec(self, spec: Any, highlight: int | None = None,
+                   form: ParamForm | None = None) -> bool:
+        """Build the chain for `spec` and submit it; on refusal say why and change nothing."""
+        try:
+            self.session.apply(spec)
+        except ValueError as exc:
+            if form is not None:
+                form.refuse(str(exc))
+            self.say(f"refused: {exc}")
+            return False
+        self._form_key = None if form is None else self._form_key
+        self.show_chain(highlight)
+        return True
+
+    def say(self, message: str) -> None:
+        """Show one sentence in the status line (it stays until the next message)."""
+        self.ui.notice = message
+        for bar in self.query("#status").results(StatusBar):
+            bar.show(self._last_status, self.ui)
+
+    # -- view actions ------------------------------------------------------------------------
+
+    def action_quit_session(self) -> None:
+        self.exit(0)
+
+    def action_show_help(self) -> None:
+        self.push_screen(HelpScreen())
+
+    def action_focus_table(self) -> None:
+        self.query_one("#channels", ChannelTable).focus()
+
+    def action_select_channel(self, index: int) -> None:
+        if index >= len(self.session.channels):
+            self.say(f"there is no channel {index + 1}")
+            return
+        self.query_one("#channels", ChannelTable).move_cursor(row=index)
+        self.selected = index
+        self.show_chain()
+        self.refresh_trace()
+
+    def action_toggle_view_pause(self) -> None:
+        from monitor.pipeline import Pause, Resume
+
+        paused = bool(self._last_status and self._last_status.paused)
+        self.pipeline.submit(Resume() if paused else Pause())
+        self.say("view resumed" if paused else
+                 "view held (space resumes); reading, filtering and recording go on"
+                 if not self.is_replay else "playback paused (space resumes)")
+
+    def action_toggle_trace_freeze(self) -> None:
+        self.ui.frozen = not self.ui.frozen
+        self.say("trace frozen (f releases it)" if self.ui.frozen else "trace follows again")
+
+    def action_trace_window(self, step: int) -> None:
+        position = min(range(len(WINDOWS_S)), key=lambda i: abs(WINDOWS_S[i] - self.ui.window_s))
+        position = max(0, min(len(WINDOWS_S) - 1, position + step))
+        capacity_s = self._capacity_s()
+        if WINDOWS_S[position] > capacity_s and step > 0:
+            self.say(f"the history holds about {capacity_s:.0f} s; give --ring-seconds for more")
+            return
+        self.ui.window_s = WINDOWS_S[position]
+        self.say(f"trace window {self.ui.window_s:g} s")
+        self.refresh_trace()
+
+    def _capacity_s(self) -> float:
+        ring, rate = self.pipeline.ring, self.pipeline.rate()
+        if ring is None or not rate:
+            return math.inf
+        return ring.capacity / rate[0]
+
+    def action_show_bad_frame(self) -> None:
+        status = self.pipeline.status()
+        if not status.last_bad and not status.bad:
+            self.say("no frame has been rejected")
+            return
+        body = (f"{status.bad} frames rejected so far.\n\nlatest: {status.last_bad!r}\n"
+                f"why: {status.last_bad_reason or 'unknown'}")
+        self.push_screen(ShowText("Latest rejected frame", body))
+
+    def action_open_plot(self) -> None:
+        if self.plot is not None and getattr(self.plot, "is_open", False):
+            self.say("the plot window is already open")
+            return
+        if not os.environ.get("DISPLAY"):
+            self.say(NO_DISPLAY)
+            return
+        try:
+            from monitor.canvas import LivePlot
+        except ImportError as exc:
+            self.say(f"the plot window is not available: {exc}")
+            return
+        plot = LivePlot(self.pipeline, lambda: self.selected)
+        why = plot.open()
+        if why is not None:
+            self.say(why)
+            return
+        self.plot = plot
+        self.set_interval(1 / PLOT_HZ, self._pump_plot)
+
+    def _pump_plot(self) -> None:
+        if self.plot is not None and getattr(self.plot, "is_open", False):
+            self.plot.pump()
+
+    @property
+    def is_replay(self) -> bool:
+        return getattr(self.args, "verb", None) == "replay" or hasattr(self.pipeline.source,
+                                                                      "seek")
+
+
+def run_app(pipeline: Any, args: argparse.Namespace) -> int:
+    """Run the terminal UI on `pipeline` until the user quits; stops the pipeline. Exit status."""
+    try:
+        pipeline.start()
+    except RuntimeError:
+        pass  # the command started it already
+    app = TunetraceApp(pipeline, args)
+    try:
+        result = app.run()
+    finally:
+        if app.plot is not None:
+            try:
+                app.plot.close()
+            finally:
+                app.plot = None
+        pipeline.stop()
+    status = pipeline.status()
+    if status.recording_error:
+        print(f"tunetrace: {status.recording_error}")
+    return int(result or 0)
