@@ -378,9 +378,11 @@ class Recording:
         t = np.concatenate(times)
         if self._t_idx is None:
             return float(t[0]), None
-        steps = np.diff(t)
-        steps = steps[np.isfinite(steps) & (steps > 0)]
-        return float(t[0]), (1.0 / float(np.median(steps)) if steps.size else None)
+        # The mean spacing, not the median: host arrival times come in bursts (a USB
+        # packet holds many rows), which biases the median step but not the span.
+        t = t[np.isfinite(t)]
+        span = float(t[-1] - t[0]) if t.size > 1 else 0.0
+        return float(t[0]), ((t.size - 1) / span if span > 0 else None)
 
     # -- data ------------------------------------------------------------------
 

@@ -1,15 +1,88 @@
-"""`tunetrace apply`."""
+"""`tunetrace apply FILE --chain CHAIN -o OUT.csv`: filter a recording offline."""
 
 from __future__ import annotations
 
 import argparse
+import sys
+import time
 
+from monitor.commands.common import positive_float
 from monitor.errors import UserError
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    pass
+    parser.add_argument("file", metavar="FILE",
+                        help="a tunetrace recording, or a CSV file with a header row")
+    parser.add_argument("--chain", required=True, metavar="CHAIN", help="chain file (TOML)")
+    parser.add_argument("-o", "--output", required=True, metavar="OUT.csv",
+                        help="the CSV to write: every input column, then <channel>_filtered")
+    parser.add_argument("--force", action="store_true", help="overwrite OUT.csv if it exists")
+    parser.add_argument("--rate", type=positive_float, metavar="HZ",
+                        help="sample rate (else the chain's rate_hz, the recording's, or "
+                             "estimated from the time column)")
+    parser.add_argument("--time-column", metavar="NAME",
+                        help="for a CSV file from another logger: the column of seconds")
+
+
+class _ProgressBar:
+    """A one-line bar on stderr, redrawn at most 5 times a second."""
+
+    WIDTH = 30
+
+    def __init__(self, stream) -> None:
+        self.stream = stream
+        self.started = time.monotonic()
+        self.drawn = False
+
+    def __call__(self, fraction: float) -> None:
+        if time.monotonic() - self.started < 0.5 and fraction < 1.0 and not self.drawn:
+            return                      # short files finish before a bar is worth drawing
+        filled = int(round(fraction * self.WIDTH))
+        self.stream.write(f"\rapply [{'#' * filled}{'.' * (self.WIDTH - filled)}] "
+                          f"{fraction * 100:5.1f}%")
+        self.stream.flush()
+        self.drawn = True
+
+    def finish(self) -> None:
+        if self.drawn:
+            self.stream.write("\n")
+            self.stream.flush()
 
 
 def run(args: argparse.Namespace) -> int:
-    raise UserError("'tunetrace apply' is not built yet.", exit_code=1)
+    from monitor.commands.common import declared_rate, parse_chain_text, read_chain_text
+    from replay.offline import apply_chain
+    from replay.reader import RecordingError, read_recording
+    from replay.writer import open_error_sentence
+
+    chain_text = read_chain_text(args.chain)
+    spec = parse_chain_text(chain_text, args.chain)
+    rate = declared_rate(args, spec, args.chain)
+    try:
+        recording = read_recording(args.file, time_column=args.time_column, rate_hz=args.rate)
+    except RecordingError as exc:
+        raise UserError(str(exc)) from None
+    bar = _ProgressBar(sys.stderr) if sys.stderr.isatty() else None
+    try:
+        result = apply_chain(recording, spec, args.output, chain_text=chain_text,
+                             rate_hz=rate, force=args.force, progress=bar)
+    except RecordingError as exc:
+        raise UserError(str(exc)) from None
+    except OSError as exc:
+        raise UserError(open_error_sentence(exc, args.output, what="output"),
+                        exit_code=1) from None
+    except ValueError as exc:
+        raise UserError(f"{args.chain} cannot run on {args.file}: {str(exc).rstrip('.')}.") \
+            from None
+    finally:
+        if bar is not None:
+            bar.finish()
+    notes = []
+    if result.bad_rows:
+        notes.append(f"{result.bad_rows} bad rows skipped")
+    if result.torn_last_line:
+        notes.append("a torn last line ignored")
+    print(f"wrote {result.out_path}: {result.rows} rows at {result.rate_hz:g} Hz "
+          f"({result.rate_origin}), {result.gaps} gaps, {result.bytes_written} bytes, "
+          f"{result.seconds:.1f} s" + (f"; {', '.join(notes)}" if notes else ""))
+    return 0
