@@ -1,0 +1,416 @@
+"""C99 source of an ExportPlan: NAME.h and NAME.c (no heap, no libm, no library calls).
+
+Float targets run transposed direct form II biquads; Q15/Q31 run direct form I with the
+integer arithmetic that filters.fixedpoint models exactly (see its module docstring).
+Every channel gets a state struct NAME_<ch>_chain and NAME_<ch>_init/_reset/_step.
+A chain starts at its first sample: each stage is primed at its own first input by its
+start policy (steady: as if that input had held forever; zero: from rest), then stepped.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from filters.fixedpoint import FixedStage, QFormat, StagePlan, fix_stage, q_format
+from monitor.export.plan import ExportChannel, ExportPlan
+
+
+@dataclass(frozen=True)
+class CTypes:
+    """C spellings for one target: sample, accumulator and literal formatting."""
+
+    sample: str
+    acc: str = ""
+    uacc: str = ""
+    limit: str = ""        # INT16 / INT32 for the saturation limits
+    literal_digits: int = 9
+    literal_suffix: str = "f"
+
+    def literal(self, value: float) -> str:
+        if self.literal_suffix == "f":
+            value = float(np.float32(value))
+        text = f"{value:.{self.literal_digits}g}"
+        if not any(ch in text for ch in ".en"):
+            text += ".0"
+        return text + self.literal_suffix
+
+
+def c_types(plan: ExportPlan) -> CTypes:
+    """The CTypes of the plan's target."""
+    if plan.target == "c-q15":
+        return CTypes("int16_t", "int32_t", "uint32_t", "INT16")
+    if plan.target == "c-q31":
+        return CTypes("int32_t", "int64_t", "uint64_t", "INT32")
+    if plan.double:
+        return CTypes("double", literal_digits=17, literal_suffix="")
+    return CTypes("float")
+
+
+def _member(plan: StagePlan, j: int, t: str, fixed: bool) -> str:
+    if plan.form == "biquads":
+        kind = "df1" if fixed else "tdf2"
+        return f"    PFX_{kind} s{j}[{len(plan.sos)}];"
+    if plan.form == "moving-average":
+        extra = "PFX_acc sum;" if fixed else f"{t} sum, fresh;"
+        return f"    struct {{ {t} buf[{plan.window}]; uint32_t pos; {extra} }} s{j};"
+    if plan.form == "median":
+        return (f"    struct {{ {t} hist[{plan.window}]; {t} sorted[{plan.window}]; "
+                f"uint32_t pos; }} s{j};")
+    return ""
+
+
+def header(plan: ExportPlan) -> str:
+    """The text of NAME.h."""
+    t = c_types(plan)
+    guard = plan.prefix.upper() + "_H"
+    lines = [
+        f"/* {plan.prefix}.h: filter chains exported by tunetrace, target {plan.target}"
+        f"{' (double)' if plan.double else ''}, {plan.rate_hz:g} Hz.",
+        " * Generated: re-export from the chain file instead of editing. See README.md.",
+        " * A filtered signal that feeds a control loop or a safety function adds lag and",
+        " * can hide faults: validate on the real system under the applicable standards. */",
+        f"#ifndef {guard}", f"#define {guard}", "", "#include <stdint.h>", "",
+        f"#define {plan.prefix.upper()}_RATE_HZ {plan.rate_hz!r}",
+        f"#define {plan.prefix.upper()}_CHANNELS {len(plan.channels)}", "",
+        f"typedef {t.sample} PFX_sample;  /* every input and output sample */",
+    ]
+    if plan.fixed:
+        fmt = q_format(plan.target)
+        lines += [
+            f"typedef {t.acc} PFX_acc;      /* accumulator */",
+            f"/* {fmt.name.upper()}: sample = value / full_scale * 2^{fmt.frac}, saturated. */",
+            "typedef struct { PFX_sample x1, x2, y1, y2; } PFX_df1;",
+        ]
+    else:
+        lines.append("typedef struct { PFX_sample s1, s2; } PFX_tdf2;")
+    for ch in plan.channels:
+        scale = f", full scale +-{ch.full_scale:g}" if plan.fixed else ""
+        lines += ["", f"/* channel {ch.name}{scale}: "
+                  + (", ".join(p.label for p in ch.plans) or "no stages (passes through)")
+                  + " */", "typedef struct {", "    int started;"]
+        lines += [m for j, p in enumerate(ch.plans) if (m := _member(p, j, "PFX_sample",
+                                                                    plan.fixed))]
+        lines += [f"}} PFX_{ch.ident}_chain;", "",
+                  "/* Clear the state: the next step starts every stage at its input. */",
+                  f"void PFX_{ch.ident}_init(PFX_{ch.ident}_chain *c);",
+                  "/* Forget the state (as init, but only marks it): restart at the next step. */",
+                  f"void PFX_{ch.ident}_reset(PFX_{ch.ident}_chain *c);",
+                  f"/* Filter one sample of channel {ch.name}. */",
+                  f"PFX_sample PFX_{ch.ident}_step(PFX_{ch.ident}_chain *c, PFX_sample x);"]
+    lines += ["", f"#endif /* {guard} */", ""]
+    return "\n".join(lines).replace("PFX_", plan.prefix + "_")
+
+
+_FLOAT_HELPERS = """\
+/* Transposed direct form II biquad; c = b0 b1 b2 a1 a2 dc_gain. */
+static inline PFX_sample PFX_tdf2_step(PFX_tdf2 *s, const PFX_sample *c, PFX_sample x)
+{
+    PFX_sample y = c[0] * x + s->s1;
+    s->s1 = c[1] * x - c[3] * y + s->s2;
+    s->s2 = c[2] * x - c[4] * y;
+    return y;
+}
+
+static inline PFX_sample PFX_cascade_step(PFX_tdf2 *s, const PFX_sample (*c)[6], unsigned n,
+                                   PFX_sample x)
+{
+    unsigned i;
+    for (i = 0; i < n; i++)
+        x = PFX_tdf2_step(&s[i], c[i], x);
+    return x;
+}
+
+/* Steady state at input u (u = 0: rest): each section as if u had held forever. */
+static inline void PFX_cascade_prime(PFX_tdf2 *s, const PFX_sample (*c)[6], unsigned n,
+                                     PFX_sample u)
+{
+    unsigned i;
+    for (i = 0; i < n; i++) {
+        PFX_sample y = c[i][5] * u;
+        s[i].s2 = c[i][2] * u - c[i][4] * y;
+        s[i].s1 = c[i][1] * u - c[i][3] * y + s[i].s2;
+        u = y;
+    }
+}
+
+/* Running sum over a circular buffer; `fresh` sums the current lap and replaces the
+ * running sum at each wrap, so rounding never accumulates beyond one window. */
+static inline PFX_sample PFX_mavg_step(PFX_sample *buf, uint32_t n, uint32_t *pos, PFX_sample *sum,
+                                PFX_sample *fresh, PFX_sample inv_n, PFX_sample x)
+{
+    PFX_sample old = buf[*pos];
+    buf[*pos] = x;
+    *sum += x - old;
+    *fresh += x;
+    if (++*pos == n) {
+        *pos = 0;
+        *sum = *fresh;
+        *fresh = 0;
+    }
+    return *sum * inv_n;
+}
+
+static inline void PFX_mavg_prime(PFX_sample *buf, uint32_t n, uint32_t *pos, PFX_sample *sum,
+                           PFX_sample *fresh, PFX_sample u)
+{
+    uint32_t i;
+    for (i = 0; i < n; i++)
+        buf[i] = u;
+    *pos = 0;
+    *sum = u * (PFX_sample)n;
+    *fresh = 0;
+}
+"""
+
+_FIXED_HELPERS = """\
+typedef UACC PFX_uacc;
+
+/* Coefficients of one direct form I section in Q(F - shift), rshift = F - shift. */
+typedef struct {
+    PFX_sample b0, b1, b2, a1, a2, dc;
+    unsigned char rshift, dc_rshift;
+} PFX_df1_coef;
+
+static inline PFX_sample PFX_sat(PFX_acc v)
+{
+    return (PFX_sample)(v > LIMIT_MAX ? LIMIT_MAX : v < LIMIT_MIN ? LIMIT_MIN : v);
+}
+
+/* Two's complement value of a wrapped unsigned sum (no implementation-defined cast). */
+static inline PFX_acc PFX_signed(PFX_uacc u)
+{
+    return u <= (PFX_uacc)ACC_MAX ? (PFX_acc)u : -(PFX_acc)(~u) - 1;
+}
+
+/* Direct form I: acc = round + b0 x + b1 x1 + b2 x2 - a1 y1 - a2 y2, summed modulo 2^N in
+ * unsigned arithmetic (wrap-around in between is harmless when the result fits), then an
+ * arithmetic right shift (round half up) and saturation. */
+static inline PFX_sample PFX_df1_step(PFX_df1 *s, const PFX_df1_coef *c, PFX_sample x)
+{
+    PFX_uacc acc = (PFX_uacc)1 << (c->rshift - 1);
+    PFX_sample y;
+    acc += (PFX_uacc)((PFX_acc)c->b0 * x);
+    acc += (PFX_uacc)((PFX_acc)c->b1 * s->x1);
+    acc += (PFX_uacc)((PFX_acc)c->b2 * s->x2);
+    acc -= (PFX_uacc)((PFX_acc)c->a1 * s->y1);
+    acc -= (PFX_uacc)((PFX_acc)c->a2 * s->y2);
+    y = PFX_sat(PFX_signed(acc) >> c->rshift);
+    s->x2 = s->x1;
+    s->x1 = x;
+    s->y2 = s->y1;
+    s->y1 = y;
+    return y;
+}
+
+static inline PFX_sample PFX_cascade_step(PFX_df1 *s, const PFX_df1_coef *c, unsigned n,
+                                          PFX_sample x)
+{
+    unsigned i;
+    for (i = 0; i < n; i++)
+        x = PFX_df1_step(&s[i], &c[i], x);
+    return x;
+}
+
+/* Steady state at input u (u = 0: rest): y = u * dc_gain, rounded. */
+static inline void PFX_cascade_prime(PFX_df1 *s, const PFX_df1_coef *c, unsigned n, PFX_sample u)
+{
+    unsigned i;
+    for (i = 0; i < n; i++) {
+        PFX_acc p = (PFX_acc)u * c[i].dc + ((PFX_acc)1 << (c[i].dc_rshift - 1));
+        PFX_sample y = PFX_sat(p >> c[i].dc_rshift);
+        s[i].x1 = s[i].x2 = u;
+        s[i].y1 = s[i].y2 = y;
+        u = y;
+    }
+}
+
+/* num / den rounded half away from zero (den > 0). */
+static inline PFX_acc PFX_div_round(PFX_acc num, PFX_acc den)
+{
+    return num >= 0 ? (num + den / 2) / den : -((-num + den / 2) / den);
+}
+
+/* Exact running sum over a circular buffer. */
+static inline PFX_sample PFX_mavg_step(PFX_sample *buf, uint32_t n, uint32_t *pos, PFX_acc *sum,
+                                PFX_sample x)
+{
+    *sum += (PFX_acc)x - buf[*pos];
+    buf[*pos] = x;
+    if (++*pos == n)
+        *pos = 0;
+    return PFX_sat(PFX_div_round(*sum, (PFX_acc)n));
+}
+
+static inline void PFX_mavg_prime(PFX_sample *buf, uint32_t n, uint32_t *pos, PFX_acc *sum,
+                           PFX_sample u)
+{
+    uint32_t i;
+    for (i = 0; i < n; i++)
+        buf[i] = u;
+    *pos = 0;
+    *sum = (PFX_acc)u * (PFX_acc)n;
+}
+
+/* y = round(x * scale >> rshift) + offset, saturated. */
+static inline PFX_sample PFX_gain(PFX_sample x, PFX_sample scale, unsigned rshift,
+                                  PFX_sample offset)
+{
+    PFX_acc p = ((PFX_acc)x * scale + ((PFX_acc)1 << (rshift - 1))) >> rshift;
+    return PFX_sat(p + offset);
+}
+"""
+
+_MEDIAN_HELPERS = """\
+/* Running median: `hist` holds the window in arrival order, `sorted` the same values in
+ * order; each sample replaces the oldest by one insertion pass. */
+static inline PFX_sample PFX_median_step(PFX_sample *hist, PFX_sample *sorted, uint32_t n,
+                                  uint32_t *pos, PFX_sample x)
+{
+    PFX_sample old = hist[*pos];
+    uint32_t i = 0;
+    hist[*pos] = x;
+    if (++*pos == n)
+        *pos = 0;
+    while (i + 1 < n && sorted[i] != old)
+        i++;
+    if (x > old) {
+        while (i + 1 < n && sorted[i + 1] < x) {
+            sorted[i] = sorted[i + 1];
+            i++;
+        }
+    } else {
+        while (i > 0 && sorted[i - 1] > x) {
+            sorted[i] = sorted[i - 1];
+            i--;
+        }
+    }
+    sorted[i] = x;
+    return sorted[n / 2];
+}
+
+static inline void PFX_median_prime(PFX_sample *hist, PFX_sample *sorted, uint32_t n,
+                             uint32_t *pos, PFX_sample u)
+{
+    uint32_t i;
+    for (i = 0; i < n; i++)
+        hist[i] = sorted[i] = u;
+    *pos = 0;
+}
+"""
+
+
+def _coef_table(ch: ExportChannel, j: int, plan: StagePlan, fixed: FixedStage | None,
+                t: CTypes) -> str:
+    name = f"PFX_{ch.ident}_c{j}"
+    if fixed is None:
+        rows = []
+        for row in plan.sos:
+            den = 1.0 + row[4] + row[5]
+            dc = (row[0] + row[1] + row[2]) / den if den else 0.0
+            vals = [row[0], row[1], row[2], row[4], row[5], dc]
+            rows.append("    {" + ", ".join(t.literal(v) for v in vals) + "}")
+        return (f"static const PFX_sample {name}[{len(rows)}][6] = {{\n"
+                + ",\n".join(rows) + "\n};")
+    fmt = fixed.fmt
+    rows = []
+    for sec in fixed.sections:
+        vals = [*sec.b, *sec.a, sec.dc_gain, fmt.frac - sec.shift, fmt.frac - sec.dc_shift]
+        rows.append("    {" + ", ".join(_int_literal(v, fmt) for v in vals[:6]) + ", "
+                    + ", ".join(str(v) for v in vals[6:]) + "}")
+    return (f"static const PFX_df1_coef {name}[{len(rows)}] = {{\n"
+            + ",\n".join(rows) + "\n};")
+
+
+def _int_literal(value: int, fmt: QFormat) -> str:
+    # INT32_MIN cannot be written as a plain literal: spell it as an expression.
+    if value == fmt.min_int:
+        return f"({value + 1} - 1)"
+    return str(value)
+
+
+def _stage_step(ch: ExportChannel, j: int, plan: StagePlan, fixed: FixedStage | None,
+                t: CTypes) -> str:
+    s = f"c->s{j}"
+    if plan.form == "biquads":
+        return f"v = PFX_cascade_step({s}, PFX_{ch.ident}_c{j}, {len(plan.sos)}u, v);"
+    if plan.form == "moving-average":
+        if fixed is not None:
+            return f"v = PFX_mavg_step({s}.buf, {plan.window}u, &{s}.pos, &{s}.sum, v);"
+        inv = t.literal(1.0 / plan.window)
+        return (f"v = PFX_mavg_step({s}.buf, {plan.window}u, &{s}.pos, &{s}.sum, "
+                f"&{s}.fresh, {inv}, v);")
+    if plan.form == "median":
+        return f"v = PFX_median_step({s}.hist, {s}.sorted, {plan.window}u, &{s}.pos, v);"
+    if fixed is not None:
+        r = fixed.fmt.frac - fixed.scale_shift
+        return (f"v = PFX_gain(v, {_int_literal(fixed.scale, fixed.fmt)}, {r}u, "
+                f"{_int_literal(fixed.offset, fixed.fmt)});")
+    return f"v = v * {t.literal(plan.scale)} + {t.literal(plan.offset)};"
+
+
+def _stage_prime(ch: ExportChannel, j: int, plan: StagePlan, fixed: FixedStage | None) -> str:
+    s = f"c->s{j}"
+    u = "v" if plan.start == "steady" else "0"
+    if plan.form == "biquads":
+        return f"PFX_cascade_prime({s}, PFX_{ch.ident}_c{j}, {len(plan.sos)}u, {u});"
+    if plan.form == "moving-average":
+        extra = "" if fixed is not None else f", &{s}.fresh"
+        return f"PFX_mavg_prime({s}.buf, {plan.window}u, &{s}.pos, &{s}.sum{extra}, {u});"
+    if plan.form == "median":
+        return f"PFX_median_prime({s}.hist, {s}.sorted, {plan.window}u, &{s}.pos, {u});"
+    return ""
+
+
+def fixed_stages(ch: ExportChannel, target: str) -> list[FixedStage]:
+    """The channel's stages quantized for a fixed-point target."""
+    fmt = q_format(target)
+    return [fix_stage(p, fmt, ch.full_scale) for p in ch.plans]
+
+
+def source(plan: ExportPlan) -> str:
+    """The text of NAME.c."""
+    t = c_types(plan)
+    forms = {p.form for ch in plan.channels for p in ch.plans}
+    parts = [f"/* {plan.prefix}.c: generated by tunetrace export ({plan.target}). "
+             "See README.md. */", f'#include "{plan.prefix}.h"', ""]
+    if plan.fixed:
+        fmt = q_format(plan.target)
+        helpers = (_FIXED_HELPERS.replace("LIMIT_MAX", f"{t.limit}_MAX")
+                   .replace("LIMIT_MIN", f"{t.limit}_MIN")
+                   .replace("ACC_MAX", f"INT{fmt.acc_bits}_MAX").replace("UACC", t.uacc))
+    else:
+        helpers = _FLOAT_HELPERS
+    parts.append(helpers)
+    if "median" in forms:
+        parts.append(_MEDIAN_HELPERS)
+    for ch in plan.channels:
+        fixed = fixed_stages(ch, plan.target) if plan.fixed else [None] * len(ch.plans)
+        parts.append(f"/* ---- channel {ch.name} ---- */")
+        for b in ch.bypassed:
+            parts.append(f"/* {b}: bypassed in the chain file, not exported */")
+        for j, (p, f) in enumerate(zip(ch.plans, fixed, strict=True)):
+            if p.form == "biquads":
+                parts.append(f"/* {p.label}, start {p.start} */\n" + _coef_table(ch, j, p, f, t))
+        steps = [(p, _stage_step(ch, j, p, f, t)) for j, (p, f)
+                 in enumerate(zip(ch.plans, fixed, strict=True))]
+        primes = [_stage_prime(ch, j, p, f) for j, (p, f)
+                  in enumerate(zip(ch.plans, fixed, strict=True))]
+        pfx = f"PFX_{ch.ident}"
+        first = []
+        for (p, step), prime in zip(steps, primes, strict=True):
+            first += [f"    /* {p.label}, start {p.start} */"]
+            first += [f"    {prime}"] if prime else []
+            first += [f"    {step}"]
+        parts.append("\n".join([
+            f"static PFX_sample {pfx}_first({pfx}_chain *c, PFX_sample v)", "{",
+            *first, "    c->started = 1;", "    return v;", "}", "",
+            f"PFX_sample {pfx}_step({pfx}_chain *c, PFX_sample x)", "{",
+            "    PFX_sample v = x;",
+            "    if (!c->started)", f"        return {pfx}_first(c, x);",
+            *[f"    {step}" for _, step in steps], "    return v;", "}", "",
+            f"void {pfx}_reset({pfx}_chain *c)", "{", "    c->started = 0;", "}", "",
+            f"void {pfx}_init({pfx}_chain *c)", "{",
+            f"    static const {pfx}_chain cleared;", "    *c = cleared;", "}", ""]))
+    return "\n".join(parts).replace("PFX_", plan.prefix + "_")

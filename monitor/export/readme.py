@@ -1,0 +1,146 @@
+"""DIR/README.md of an export: API, scaling, headroom, how to build and check the port."""
+
+from __future__ import annotations
+
+from filters.fixedreport import QuantizationReport
+from monitor.export.plan import ExportPlan
+
+CAUTION = (
+    "**Caution.** A filter adds lag and can hide faults. If this code feeds a control loop "
+    "or a safety function, validate it on the real system under the standards and local "
+    "practice that apply to it: the added lag (group delay) changes loop stability and "
+    "response times, and a filter can smooth away the very fault a protection function "
+    "must see. The test vectors prove the port matches the host model, not that the "
+    "filter is right for the machine."
+)
+
+
+def _api(plan: ExportPlan) -> list[str]:
+    p = plan.prefix
+    ch = plan.channels[0].ident
+    return [
+        "## API", "",
+        f"`{p}.h` declares, for every channel `<ch>`:", "",
+        "```c",
+        f"typedef ... {p}_sample;                       /* every input and output sample */",
+        f"typedef struct {{ ... }} {p}_<ch>_chain;       /* the state of one channel chain */",
+        f"void        {p}_<ch>_init({p}_<ch>_chain *c);  /* clear; start at the next sample */",
+        f"void        {p}_<ch>_reset({p}_<ch>_chain *c); /* restart at the next sample */",
+        f"{p}_sample {p}_<ch>_step({p}_<ch>_chain *c, {p}_sample x); /* one sample */",
+        "```", "",
+        "No heap, no libm, no library calls: the state lives in the struct you provide "
+        "(a zero-initialised static struct is ready to use). A chain starts at its first "
+        "sample: each stage with start `steady` begins as if its first input had held "
+        "forever (no start-up ramp from zero); a stage with start `zero` begins from rest. "
+        "`reset` restarts the same way at the next sample (after a sensor fault, say). "
+        "Call `step` once per sample at the rate the chain was designed for "
+        f"({plan.rate_hz:g} Hz, `{p.upper()}_RATE_HZ`); at another rate the cutoffs move.", "",
+        "```c",
+        f'#include "{p}.h"',
+        f"static {p}_{ch}_chain {ch}_filter;             /* zero-initialised: ready */",
+        "/* in the sampling interrupt or task: */",
+        f"{p}_sample y = {p}_{ch}_step(&{ch}_filter, x);",
+        "```", "",
+    ]
+
+
+def _scaling(plan: ExportPlan) -> list[str]:
+    if not plan.fixed:
+        kind = "double" if plan.double else "single precision (float)"
+        return ["## Arithmetic", "",
+                f"Samples are in the channel's own units, {kind}. IIR stages run as cascades "
+                "of transposed direct form II biquads (coefficients b0 b1 b2 a1 a2 as "
+                "designed, a0 = 1). Moving averages keep a running sum over a circular "
+                "buffer, refreshed at every lap so rounding does not accumulate. Medians "
+                "insert each sample into a sorted window (no heap, no sort call).", ""]
+    q = plan.target[2:].upper()
+    f, acc = (15, 32) if q == "Q15" else (31, 64)
+    lines = ["## Q format and scaling", "",
+             f"Samples are {q}: `int{f + 1}_t`, value = sample / 2^{f} x full scale. "
+             "Convert a reading in units with `round(reading / full_scale * 2^{f})`, "
+             "saturated to the type's range; the output uses the same scaling.", "",
+             "| channel | full scale (units per +-1.0) | one LSB |", "|---|---|---|"]
+    lines += [f"| {ch.name} | +-{ch.full_scale:g} | {ch.full_scale / 2 ** f:.6g} |"
+              for ch in plan.channels]
+    lines += ["",
+              f"Biquad sections run in direct form I with {q} coefficients and a {acc}-bit "
+              "accumulator. A section whose coefficients reach magnitude 1 or more holds "
+              f"them in Q(F - shift) (F = {f}); the product sum is then shifted right by "
+              "F - shift. Sums wrap modulo 2^N in unsigned arithmetic (harmless in between: "
+              "only the final sum matters), are rounded half up by adding 2^(r-1) before an "
+              "arithmetic right shift by r, and saturate to the sample range. The right "
+              "shift of a negative value is arithmetic on gcc, clang and the usual embedded "
+              "compilers (C leaves it to the implementation); check yours if unsure. "
+              "Cascades are rescaled so each section's running response peaks at 1. "
+              "Steady start uses each section's DC gain, held like a coefficient. Moving "
+              "averages keep an exact sum in the accumulator type and round half away from "
+              "zero when dividing; a gain stage holds its scale with a shift and its offset "
+              "in the channel's scaling. The coefficient tables in "
+              f"`{plan.prefix}.c` list b0 b1 b2 a1 a2 dc_gain, rshift, dc_rshift per section.",
+              "",
+              "**Headroom.** The peak gain (L1 norm of the impulse response from the stage "
+              "input to a section output) bounds how far a section can go for any input "
+              "within full scale; above 1 the section can saturate. Choose the full scale "
+              "with margin for the largest reading the board can produce.", ""]
+    return lines
+
+
+def _build(plan: ExportPlan) -> list[str]:
+    p = plan.prefix
+    k = len(plan.channels)
+    lines = ["## Build and check against the vectors", "",
+             f"`{p}_vectors.csv` holds {k} input column(s) then {k} expected output "
+             "column(s), from tunetrace's Python model, after a header row.", "",
+             "```sh",
+             f"gcc -std=c99 -O2 -Wall -Wextra -pedantic -o {p}_selftest {p}_selftest.c {p}.c",
+             f"tail -n +2 {p}_vectors.csv | cut -d, -f1-{k} | ./{p}_selftest > got.csv",
+             f"tail -n +2 {p}_vectors.csv | cut -d, -f{k + 1}-{2 * k} > want.csv"]
+    if plan.fixed:
+        lines += ["diff got.csv want.csv && echo bit-exact", "```", "",
+                  "Fixed point must match bit for bit. The vectors end with a full-scale "
+                  "square wave, so they also prove the saturation."]
+    else:
+        tol = "1e-12" if plan.double else "1e-5"
+        lines += [
+            "paste -d, got.csv want.csv | awk -F, -v k=" + str(k) + " -v tol=" + tol + " '"
+            "{ for (i = 1; i <= k; i++) { d = $i - $(i + k); if (d < 0) d = -d; "
+            "m = $(i + k); if (m < 0) m = -m; if (d > err[i]) err[i] = d; "
+            "if (m > peak[i]) peak[i] = m } } "
+            "END { bad = 0; for (i = 1; i <= k; i++) { r = err[i] / (peak[i] > 0 ? peak[i] "
+            ": 1); print \"column \" i \": max error \" r \" of peak\"; if (r > tol) bad = 1 }"
+            " exit bad }'",
+            "```", "",
+            f"The expected values come from a float64 model, so expect differences up to "
+            f"about {tol} of each column's peak."]
+    lines += ["", "The self-test reads one row of comma-separated inputs per line on stdin "
+              "and prints one row of outputs per line; a bad row stops it with the line "
+              "number on stderr.", ""]
+    return lines
+
+
+def readme_text(plan: ExportPlan, report: QuantizationReport, chain_path: str,
+                forced: bool) -> str:
+    """The text of DIR/README.md."""
+    p = plan.prefix
+    target = plan.target + (" --double" if plan.double else "")
+    lines = [f"# {p}: exported filter chains ({target})", "",
+             f"Generated by `tunetrace export` from `{chain_path}` at {plan.rate_hz:g} Hz.", "",
+             CAUTION, ""]
+    if forced and not report.ok:
+        lines += ["**WARNING: exported although the target cannot hold this chain "
+                  "(--accept-quantization).** " + " ".join(report.fatal + report.problems), ""]
+    lines += ["## Files", "",
+              f"- `{p}.h`, `{p}.c`: the chains (C99).",
+              f"- `{p}_selftest.c`: a main that filters CSV rows from stdin.",
+              f"- `{p}_vectors.csv`: test input and the expected output.",
+              "- `README.md`: this file.", "",
+              "## Channels", ""]
+    for ch in plan.channels:
+        stages = "; ".join(f"{s.label} ({s.form}, start {s.start})" for s in ch.plans)
+        lines.append(f"- `{ch.name}` -> `{p}_{ch.ident}_step`: {stages or 'no stages'}"
+                     + (f"; bypassed, not exported: {', '.join(ch.bypassed)}"
+                        if ch.bypassed else ""))
+    lines.append("")
+    lines += _api(plan) + _scaling(plan) + _build(plan)
+    lines += ["## Quantization report", "", "```", report.format_text(), "```", ""]
+    return "\n".join(lines)
