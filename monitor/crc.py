@@ -20,8 +20,10 @@ from __future__ import annotations
 import binascii
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
-import numpy as np
+if TYPE_CHECKING:
+    import numpy as np
 
 CRC_NAMES: tuple[str, ...] = ("none", "crc16-ccitt", "crc16-modbus", "crc32")
 
@@ -129,6 +131,8 @@ def crc_rows(name: str, rows: np.ndarray) -> np.ndarray:
     One table lookup per byte position across all rows, so the Python loop runs
     `length` times whatever n is. Matches the one-frame functions exactly.
     """
+    import numpy as np  # here, not at the top: the CLI imports this module at startup
+
     rows = np.ascontiguousarray(rows, dtype=np.uint8)
     n, length = rows.shape
     if name == "crc16-ccitt":

@@ -105,8 +105,8 @@ class BinaryDecoder:
                  counter_bits: int | None = None) -> None:
         order, items = parse_layout(layout)
         if len(fields) != len(items):
-            raise ValueError(f"fields name {len(fields)} values but layout '{layout}' holds "
-                             f"{len(items)}; give one name per value")
+            raise ValueError(f"fields give {len(fields)} names but layout '{layout}' holds "
+                             f"{len(items)} values; give one name per value")
         names, units = zip(*(split_name_unit(f) for f in fields), strict=True)
         if len(set(names)) != len(names):
             raise ValueError(f"fields {', '.join(names)} repeat a name; names must be unique")
@@ -123,8 +123,8 @@ class BinaryDecoder:
             "itemsize": self.frame_size,
         })
         index = {name: i for i, name in enumerate(names)}
-        self._time_index = self._field_index(index, time_field, "time_field")
-        self._counter_index = self._field_index(index, counter_field, "counter_field")
+        self._time_index = self._field_index(index, time_field, "time field")
+        self._counter_index = self._field_index(index, counter_field, "counter field")
         self.clock: DeviceClock | None = None
         self.counter: SequenceCounter | None = None
         if self._time_index is not None:
@@ -132,13 +132,13 @@ class BinaryDecoder:
             if time_bits is None and kind in "iu" and size * 8 in (16, 32):
                 time_bits = size * 8
             if time_bits is not None and kind == "f":
-                raise ValueError(f"time_bits {time_bits} needs an integer time field; "
+                raise ValueError(f"time bits {time_bits} need an integer time field; "
                                  f"'{time_field}' is floating point")
             self.clock = DeviceClock(time_unit, time_bits)
         if self._counter_index is not None:
             kind, size = items[self._counter_index][0][1], items[self._counter_index][2]
             if kind not in "iu":
-                raise ValueError(f"counter_field '{counter_field}' must be an integer field")
+                raise ValueError(f"counter field '{counter_field}' must be an integer field")
             self.counter = SequenceCounter(counter_bits or min(size * 8, 32))
         special = {self._time_index, self._counter_index}
         self._channel_fields = [f"f{i}" for i in range(len(items)) if i not in special]
@@ -172,6 +172,11 @@ class BinaryDecoder:
     def timing(self) -> DeviceTiming | None:
         """Sample rate and jitter on the device clock (None without a time field)."""
         return self.clock.timing() if self.clock else None
+
+    def device_rate(self) -> float | None:
+        """Sample rate on the device clock (Hz), or None before 8 intervals are seen."""
+        timing = self.timing()
+        return timing.rate_hz if timing is not None and timing.intervals >= 8 else None
 
     def crc_ok(self, frame: bytes) -> bool:
         """Whether one frame has the right length and, if a CRC is set, a matching one."""
