@@ -150,7 +150,8 @@ class ResponsePanel:
                 area.vertical_marker(marks, math.log10(hz), palette.CUTOFF,
                                      text if area is self.magnitude else None, row)
             area.vertical_marker(marks, nyquist, palette.NYQUIST,
-                                 "Nyquist" if area is self.magnitude else None, 0, side="left")
+                                 "Nyquist" if area is self.magnitude else None, len(self.markers),
+                                 side="left")
 
 
 def active_designs(chain, channel: str) -> list:

@@ -95,4 +95,4 @@ class SpectrumPanel:
         for row, (hz, text) in enumerate(self.markers):
             self.area.vertical_marker(marks, math.log10(hz), palette.CUTOFF, text, row)
         self.area.vertical_marker(marks, math.log10(self.rate_hz / 2), palette.NYQUIST,
-                                  "Nyquist", 0, side="left")
+                                  "Nyquist", len(self.markers), side="left")
