@@ -1,11 +1,14 @@
-"""A weigh-station board on a real pseudo-terminal, and a live pipeline reading it."""
+"""A live pipeline reading the weigh-station board through a real pseudo-terminal.
+
+The board is the shared `pty_board` fixture (tests/monitor/conftest.py) playing
+the simulated weigh station's header and CSV rows at 250 Hz; the pipeline opens
+the pty's slave with pyserial as it would /dev/ttyACM0.
+"""
 
 from __future__ import annotations
 
-import os
-import threading
 import time
-import tty
+from collections.abc import Iterator
 
 import pytest
 
@@ -14,74 +17,29 @@ from monitor.sim.weighstation import WeighStation, channel_names
 BOARD_RATE_HZ = 250.0
 
 
-class PtyBoard:
-    """Writes the weigh-station stream (header, then CSV at `rate_hz`) into a pty master.
-
-    `path` is the slave device that pyserial opens, as it would /dev/ttyACM0.
-    """
-
-    def __init__(self, rate_hz: float = BOARD_RATE_HZ, channels: int = 3, seed: int = 7) -> None:
-        self.rate_hz = rate_hz
-        self.master, self.slave = os.openpty()
-        tty.setraw(self.slave)
-        self.path = os.ttyname(self.slave)
-        self.names = channel_names(channels)
-        self._board = WeighStation(rate_hz, channels, seed)
-        self._stop = threading.Event()
-        self._thread = threading.Thread(target=self._run, name="pty-board", daemon=True)
-
-    def start(self) -> PtyBoard:
-        self._thread.start()
-        return self
-
-    def _run(self) -> None:
-        header = ",".join(f"{n}[{u}]" for n, u in self.names)
-        try:
-            os.write(self.master, f"\r\n{header}\r\n".encode())
-            t0, sent = time.monotonic(), 0
-            while not self._stop.is_set():
-                due = int((time.monotonic() - t0) * self.rate_hz) - sent
-                if due > 0:
-                    rows = self._board.generate(due)
-                    text = "".join(",".join(f"{v:.5f}" for v in row) + "\r\n"
-                                   for row in rows.tolist())
-                    os.write(self.master, text.encode())
-                    sent += due
-                time.sleep(0.01)
-        except OSError:
-            pass  # the reader closed the pty
-
-    def close(self) -> None:
-        self._stop.set()
-        self._thread.join(2)
-        for fd in (self.master, self.slave):
-            try:
-                os.close(fd)
-            except OSError:
-                pass
+def weigh_lines(rate_hz: float = BOARD_RATE_HZ, channels: int = 3,
+                seed: int = 7) -> Iterator[bytes]:
+    """The board's output: a blank line, the header, then one CSV row per sample, forever."""
+    board = WeighStation(rate_hz, channels, seed)
+    yield b"\r\n"
+    yield (",".join(f"{n}[{u}]" for n, u in channel_names(channels)) + "\r\n").encode()
+    while True:
+        for row in board.generate(50).tolist():
+            yield (",".join(f"{v:.5f}" for v in row) + "\r\n").encode()
 
 
 @pytest.fixture
-def board():
-    b = PtyBoard()
-    yield b
-    b.close()
-
-
-@pytest.fixture
-def pipeline(board):
+def pipeline(pty_board, wait_for):
     """A started Pipeline on the pty board, rate declared (250 Hz) so chains design at once."""
     from monitor.pipeline import Pipeline, text_source
     from monitor.sources import open_byte_source
 
-    source = open_byte_source(board.path, 115200)
-    board.start()           # after the open, so the header line is surely read
-    p = Pipeline(text_source(source, declared_rate=board.rate_hz), rate_hz=board.rate_hz,
-                 ring_capacity=250 * 60)
+    source = open_byte_source(pty_board.path, 115200)
+    pty_board.play(weigh_lines(), BOARD_RATE_HZ)   # after the open: the header is surely read
+    p = Pipeline(text_source(source, declared_rate=BOARD_RATE_HZ), rate_hz=BOARD_RATE_HZ,
+                 ring_capacity=int(BOARD_RATE_HZ * 60))
     p.start()
-    deadline = time.monotonic() + 10
-    while (p.ring is None or p.ring.total < 50) and time.monotonic() < deadline:
-        time.sleep(0.02)
-    assert p.ring is not None, "no samples arrived from the pty board"
+    assert wait_for(lambda: p.ring is not None and p.ring.total >= 50 and p.schema is not None)
     yield p
     p.stop()
+    time.sleep(0)  # let the board thread see the closed port
