@@ -238,7 +238,8 @@ class FramedSource:
         gaps = self.byte_source.take_gaps()
         if gaps:
             self._arrival.restart()
-        return gaps
+        decoder_gaps = getattr(self.decoder, "take_gaps", None)   # dropped frames, clock resets
+        return gaps + decoder_gaps() if decoder_gaps else gaps
 
     def describe(self) -> str:
         return self.byte_source.describe()

@@ -12,6 +12,7 @@ import os
 import time
 from typing import Any
 
+from monitor.binary_options import add_binary_options, binary_framing
 from monitor.errors import UserError
 
 DEFAULT_BAUD = 115200
@@ -66,12 +67,15 @@ def add_source_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--plain", action="store_true",
                         help="no UI: print one stats line per second on stdout")
     parser.add_argument("--time-column", metavar="NAME",
-                        help="column holding the device time in seconds")
+                        help="column (or binary field) holding the device time, in "
+                             "--time-unit (default s)")
     parser.add_argument("--counter-column", metavar="NAME",
-                        help="column holding the sample counter; gaps count as dropped")
+                        help="column (or binary field) holding the sample counter; gaps "
+                             "count as dropped")
     parser.add_argument("--channels", type=channel_list, metavar="NAMES",
                         help="column names for a stream without a header line, comma "
                              "separated (default ch0,ch1,...)")
+    add_binary_options(parser)
     parser.add_argument("--ring-seconds", type=positive_float, default=DEFAULT_RING_SECONDS,
                         metavar="S",
                         help=f"history kept, in seconds at the declared rate or at "
@@ -160,11 +164,15 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
     if isinstance(source, str):
         from monitor.sources import open_byte_source
 
+        binary = binary_framing(args, source)        # checked before the port opens
         byte_source = open_byte_source(source, getattr(args, "baud", DEFAULT_BAUD))
-        source = text_source(byte_source, channels=getattr(args, "channels", None),
-                             time_column=getattr(args, "time_column", None),
-                             counter_column=getattr(args, "counter_column", None),
-                             declared_rate=rate)
+        if binary is not None:
+            source = binary.source(byte_source, rate)
+        else:
+            source = text_source(byte_source, channels=getattr(args, "channels", None),
+                                 time_column=getattr(args, "time_column", None),
+                                 counter_column=getattr(args, "counter_column", None),
+                                 declared_rate=rate)
     capacity = ring_capacity(getattr(args, "ring_seconds", DEFAULT_RING_SECONDS), rate)
     pipeline = Pipeline(source, chain_spec=spec, rate_hz=rate, ring_capacity=capacity)
     if record:
