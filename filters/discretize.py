@@ -28,7 +28,7 @@ every method against cont2discrete on prototypes small enough for its tf path.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -179,8 +179,12 @@ def _zoh(proto: AnalogPrototype, t: float) -> DigitalZpk:
     """
     from scipy import linalg, signal
 
-    a_mat, b_vec, c_vec, d_mat = _cascade_state_space(proto)
-    ad, bd, cd, dd, _ = signal.cont2discrete((a_mat, b_vec, c_vec, d_mat), t, method="zoh")
+    # Work in time measured in samples (roots scaled by T, dt = 1): the state space then
+    # holds numbers near 1 and the far sampling zeros of an order-10 design stay accurate.
+    excess = len(proto.p) - len(proto.z)
+    scaled = replace(proto, z=proto.z * t, p=proto.p * t, k=proto.k * t**excess)
+    a_mat, b_vec, c_vec, d_mat = _cascade_state_space(scaled)
+    ad, bd, cd, dd, _ = signal.cont2discrete((a_mat, b_vec, c_vec, d_mat), 1.0, method="zoh")
     n = ad.shape[0]
     pencil_m = np.block([[ad, bd], [cd, dd]])
     pencil_n = np.zeros((n + 1, n + 1))
