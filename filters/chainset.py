@@ -107,8 +107,15 @@ class ChainSet:
         if not math.isfinite(flat.dot(flat)):  # cheapest test: NaN/inf (or |x| > 1e154)
             finite = np.isfinite(x)
             if not finite.all():
+                previous = self._last_inputs()
+                first = finite.argmax(axis=0)
+                fresh = np.isnan(previous) & finite.any(axis=0) & (first > 0)
+                if fresh.any():  # a channel's first finite sample: start it there exactly
+                    edges = [0, *sorted(set(first[fresh].tolist())), n]
+                    return np.vstack([self.process(raw[a:b])
+                                      for a, b in zip(edges, edges[1:], strict=False)])
                 missing = ~finite
-                x, never = self._fill_missing(x, finite)
+                x, never = self._fill_missing(x, finite, previous)
         if self._whole is not None:
             out = self._whole.process(x)
         else:
@@ -121,21 +128,22 @@ class ChainSet:
                 run.reset(never[columns])
         return out
 
-    def _fill_missing(self, x: np.ndarray, finite: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Replace non-finite samples by the channel's last finite value (or its next one
-        if it has none yet); returns (filled, columns that still have no finite value)."""
+    def _last_inputs(self) -> np.ndarray:
+        """Each channel's last finite input (the filled one), NaN if it has had none."""
+        return np.array([run.bounds[0, column] for run, column, _ in
+                         (self._place[c] for c in self.channels)])
+
+    @staticmethod
+    def _fill_missing(x: np.ndarray, finite: np.ndarray, previous: np.ndarray
+                      ) -> tuple[np.ndarray, np.ndarray]:
+        """Replace non-finite samples by the channel's last finite value; returns (filled,
+        columns without any finite value so far, which are filled with 0 and reset after)."""
         n, k = x.shape
-        previous = np.array([self._place[c][0].bounds[0, self._place[c][1]]
-                             for c in self.channels])
         rows = np.where(finite, np.arange(n)[:, None], -1)
         np.maximum.accumulate(rows, axis=0, out=rows)
         filled = np.where(rows >= 0, x[np.maximum(rows, 0), np.arange(k)], previous)
-        has_any = finite.any(axis=0)
-        first = x[finite.argmax(axis=0), np.arange(k)]
-        lead = np.isnan(filled) & has_any[None, :]
-        filled[lead] = np.broadcast_to(first, (n, k))[lead]
-        never = np.isnan(previous) & ~has_any
-        filled[:, never] = 0.0  # processed, then the columns are reset: as if never seen
+        never = np.isnan(previous) & ~finite.any(axis=0)
+        filled[:, never] = 0.0
         return filled, never
 
     def reset(self) -> None:
