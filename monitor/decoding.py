@@ -157,7 +157,13 @@ class TextDecoder:
         return is_header
 
     def _set_schema(self, pairs: list[tuple[str, str]]) -> None:
-        names = [name for name, _ in pairs]
+        names: list[str] = []
+        for name, _ in pairs:                     # channel names must be unique
+            unique, n = name, 2
+            while unique in names:
+                unique, n = f"{name}_{n}", n + 1
+            names.append(unique)
+        pairs = [(name, unit) for name, (_, unit) in zip(names, pairs, strict=True)]
         missing = [c for c in (self.time_column, self.counter_column) if c and c not in names]
         if missing:
             self.warning = (f"column {missing[0]!r} is not in the stream (columns: "

@@ -33,16 +33,13 @@ def positive_float(text: str) -> float:
     return value
 
 
-def baud_rate(text: str) -> int:
-    """argparse type: a whole number of baud > 0."""
+def baud_rate(text: str | int) -> int:
+    """A whole number of baud; UserError naming --baud otherwise (checked > 0 on open)."""
     try:
-        value = int(text)
+        return int(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(
-            f"{text!r} is not a whole number of baud (e.g. 115200)") from None
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"{text} must be a positive number of baud")
-    return value
+        raise UserError(f"--baud {text!r} is not a whole number of baud; give e.g. 115200.") \
+            from None
 
 
 def channel_list(text: str) -> tuple[str, ...]:
@@ -55,7 +52,7 @@ def channel_list(text: str) -> tuple[str, ...]:
 
 def add_source_options(parser: argparse.ArgumentParser) -> None:
     """The options every streaming verb shares (DESIGN.md, command line)."""
-    parser.add_argument("--baud", type=baud_rate, default=DEFAULT_BAUD, metavar="N",
+    parser.add_argument("--baud", default=DEFAULT_BAUD, metavar="N",
                         help=f"line speed in baud (default {DEFAULT_BAUD}; ignored by - and sim://)")
     parser.add_argument("--rate", type=positive_float, metavar="HZ",
                         help="declared sample rate; else the chain file's rate_hz, else the "
@@ -165,7 +162,8 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
         from monitor.sources import open_byte_source
 
         binary = binary_framing(args, source)        # checked before the port opens
-        byte_source = open_byte_source(source, getattr(args, "baud", DEFAULT_BAUD))
+        baud = baud_rate(getattr(args, "baud", DEFAULT_BAUD))
+        byte_source = open_byte_source(source, baud)
         if binary is not None:
             source = binary.source(byte_source, rate)
         else:

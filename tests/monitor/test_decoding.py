@@ -154,3 +154,9 @@ def test_arrival_rate_settles_after_two_seconds():
     est.add(100.0, 1)                            # after a gap, the outage does not count
     est.add(100.5, 50)
     assert est.estimate() == pytest.approx(100.0) and est.settled()
+
+
+def test_duplicate_header_names_made_unique():
+    dec = TextDecoder()
+    dec.decode([b"v[g],v[g],v"], 0.0)
+    assert dec.schema.channels == ("v", "v_2", "v_3") and dec.schema.units == ("g", "g", "")
