@@ -33,12 +33,24 @@ def positive_float(text: str) -> float:
     return value
 
 
-def baud_rate(text: str | int) -> int:
-    """A whole number of baud; UserError naming --baud otherwise (checked > 0 on open)."""
+def baud_rate(text: str) -> int:
+    """argparse type: a whole number of baud > 0."""
     try:
-        return int(text)
+        value = int(text)
     except ValueError:
-        raise UserError(f"--baud {text!r} is not a whole number of baud; give e.g. 115200.") \
+        raise argparse.ArgumentTypeError(
+            f"{text!r} is not a whole number of baud (e.g. 115200)") from None
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"{text} must be a positive number of baud")
+    return value
+
+
+def parse_baud(value: str | int) -> int:
+    """--baud as given: a whole number, else UserError in one sentence (checked > 0 on open)."""
+    try:
+        return int(value)
+    except ValueError:
+        raise UserError(f"--baud {value!r} is not a whole number of baud; give e.g. 115200.") \
             from None
 
 
@@ -162,7 +174,7 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
         from monitor.sources import open_byte_source
 
         binary = binary_framing(args, source)        # checked before the port opens
-        baud = baud_rate(getattr(args, "baud", DEFAULT_BAUD))
+        baud = parse_baud(getattr(args, "baud", DEFAULT_BAUD))
         byte_source = open_byte_source(source, baud)
         if binary is not None:
             source = binary.source(byte_source, rate)
