@@ -5,7 +5,9 @@ from __future__ import annotations
 import argparse
 
 from monitor.commands.common import positive_float
+from monitor.crc import CRC_NAMES
 from monitor.errors import UserError
+from monitor.framing_binary import FRAMINGS
 
 DEMO_RATE_HZ = 250.0
 
@@ -66,6 +68,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="random seed of the simulated board (default 1)")
     parser.add_argument("--record", metavar="FILE",
                         help="record every raw sample to this CSV file")
+    parser.add_argument("--framing", choices=FRAMINGS, default="text",
+                        help="what the simulated board sends: text lines (default) or binary "
+                             "frames (cobs, slip, sync) with counter, microsecond time and CRC")
+    parser.add_argument("--crc", choices=CRC_NAMES, default=None,
+                        help="checksum of the binary frames (default crc16-ccitt)")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -79,6 +86,9 @@ def run(args: argparse.Namespace) -> int:
     spec = parse_chain_text(text, name)
     rate = spec.rate_hz or DEMO_RATE_HZ           # the board runs at the chain's rate
     args.rate = None if spec.rate_hz else rate
-    pipeline = build_pipeline(args, f"sim://?rate={rate:g}&seed={args.seed}",
+    url = f"sim://?rate={rate:g}&seed={args.seed}"
+    if args.framing != "text":
+        url += f"&format={args.framing}" + (f"&crc={args.crc}" if args.crc else "")
+    pipeline = build_pipeline(args, url,
                               chain_text=text, chain_name=name)
     return run_session(pipeline, args)

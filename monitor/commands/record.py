@@ -9,6 +9,7 @@ import sys
 import time
 from typing import Any
 
+from monitor.binary_options import add_binary_options
 from monitor.commands.common import (
     DEFAULT_BAUD,
     baud_rate,
@@ -47,6 +48,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="column holding the sample counter; gaps count as dropped")
     parser.add_argument("--channels", type=channel_list, metavar="NAMES",
                         help="column names for a stream without a header line (a,b,c)")
+    add_binary_options(parser)
 
 
 class _WatchedSink:
