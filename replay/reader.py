@@ -114,6 +114,11 @@ def _parses(text: str) -> bool:
     return True
 
 
+def _read_failed(path: str, exc: OSError) -> RecordingError:
+    return RecordingError(f"{path} cannot be read ({exc.strerror or exc}); check the disk "
+                          "or copy the file somewhere readable.")
+
+
 def _open(path: str):
     try:
         if os.path.isdir(path):
@@ -125,7 +130,7 @@ def _open(path: str):
         raise RecordingError(f"{path} cannot be read (permission denied); "
                              "fix its permissions or copy it somewhere readable.") from None
     except OSError as exc:
-        raise RecordingError(f"{path} cannot be read: {exc.strerror or exc}.") from None
+        raise _read_failed(path, exc) from None
 
 
 class Recording:
@@ -161,10 +166,13 @@ class Recording:
         self.size_bytes = os.path.getsize(self.path) if os.path.isfile(self.path) else 0
         self._scanned_to = 0
         self._index: list[tuple[int, float, int]] = []  # (byte offset, first t, row number)
-        with _open(self.path) as f:
-            self.header, self._data_start = self._read_header(f)
-        self._setup_columns(time_column)
-        self._t_first, self._rate_estimate = self._peek()
+        try:
+            with _open(self.path) as f:
+                self.header, self._data_start = self._read_header(f)
+            self._setup_columns(time_column)
+            self._t_first, self._rate_estimate = self._peek()
+        except OSError as exc:
+            raise _read_failed(self.path, exc) from None
 
     # -- public ----------------------------------------------------------------
 
@@ -392,7 +400,10 @@ class Recording:
             f.seek(offset)
             leftover = b""
             while True:
-                data = f.read(self.chunk_bytes)
+                try:
+                    data = f.read(self.chunk_bytes)
+                except OSError as exc:
+                    raise _read_failed(self.path, exc) from None
                 if not data:
                     yield from self._tail_line(leftover, row, keep_text, offset)
                     return
