@@ -108,6 +108,8 @@ def binary_framing(args: argparse.Namespace, source: Any) -> BinaryFraming | Non
             raise UserError(f"{option} describes binary frames; add --framing cobs, slip "
                             f"or sync, or leave {option} out for text lines.")
         return None
+    if sim is None or getattr(args, "layout", None) is not None:
+        _check_field_options(args)
     options = _decoder_options(args, sim)
     from monitor.decoding_binary import BinaryDecoder
     from monitor.framing_binary import SyncFramer, make_framer
@@ -122,6 +124,28 @@ def binary_framing(args: argparse.Namespace, source: Any) -> BinaryFraming | Non
     except ValueError as exc:
         raise UserError(f"cannot decode {framing} frames: {str(exc).rstrip('.')}.") from None
     return BinaryFraming(framing, framer, decoder)
+
+
+def text_time_options(args: argparse.Namespace) -> dict[str, Any]:
+    """TextDecoder's clock and sequence when --time-unit, --time-bits or --counter-bits
+    say how the text columns count (else None: seconds, no wrap, as before)."""
+    from monitor.devicetime import DeviceClock, SequenceCounter
+
+    _check_field_options(args)
+    unit, time_bits = getattr(args, "time_unit", None), getattr(args, "time_bits", None)
+    counter_bits = getattr(args, "counter_bits", None)
+    return {"clock": DeviceClock(unit or "s", time_bits) if unit or time_bits else None,
+            "sequence": SequenceCounter(counter_bits) if counter_bits else None}
+
+
+def _check_field_options(args: argparse.Namespace) -> None:
+    """UserError for --time-unit/--time-bits without --time-column (same for the counter)."""
+    pairs = (("time_unit", "time_column"), ("time_bits", "time_column"),
+             ("counter_bits", "counter_column"))
+    for option, needs in pairs:
+        if getattr(args, option, None) is not None and getattr(args, needs, None) is None:
+            flag, column = "--" + option.replace("_", "-"), "--" + needs.replace("_", "-")
+            raise UserError(f"{flag} needs {column} naming the column it describes.")
 
 
 def _decoder_options(args: argparse.Namespace, sim: Any) -> dict[str, Any]:

@@ -23,6 +23,7 @@ import numpy as np
 
 from monitor.block import Block, Schema
 from monitor.counters import BadFrames
+from monitor.devicetime import DeviceClock, SequenceCounter
 
 _UNIT = re.compile(r"^(.*?)\s*\[\s*(.*?)\s*\]$")
 
@@ -75,7 +76,8 @@ class TextDecoder:
     """
 
     def __init__(self, channels: Sequence[str] | None = None, time_column: str | None = None,
-                 counter_column: str | None = None) -> None:
+                 counter_column: str | None = None, *, clock: DeviceClock | None = None,
+                 sequence: SequenceCounter | None = None) -> None:
         if time_column is not None and time_column == counter_column:
             raise ValueError(f"time_column and counter_column are both {time_column!r}; "
                              f"give two different columns")
@@ -95,6 +97,8 @@ class TextDecoder:
         self._last_counter: int | None = None
         self._t_dev_steps: deque[float] = deque(maxlen=512)
         self._last_t_dev: float | None = None
+        self.clock = clock            # unit and wraparound of the time column, if given
+        self.sequence = sequence      # width and wraparound of the counter column, if given
 
     # -- public --------------------------------------------------------------
 
@@ -248,11 +252,22 @@ class TextDecoder:
         t_dev = counter = None
         if self._time_col is not None:
             t_dev = np.ascontiguousarray(table[:, self._time_col])
+            if self.clock is not None:
+                t_dev = self.clock.unwrap(t_dev)
             self._note_device_time(t_dev)
         if self._counter_col is not None:
             counter = table[:, self._counter_col].astype(np.int64)
-            self._note_counter(counter)
+            if self.sequence is not None:
+                counter = self.sequence.unwrap(counter)
+                self.dropped = self.sequence.dropped
+            else:
+                self._note_counter(counter)
         return Block(t_host=t_host, values=values, t_dev=t_dev, counter=counter)
+
+    def take_gaps(self) -> list[str]:
+        """Counter holes and clock resets since the last call (with clock/sequence given)."""
+        gaps = self.sequence.take_gaps() if self.sequence is not None else []
+        return gaps + (self.clock.take_gaps() if self.clock is not None else [])
 
     def _note_counter(self, counter: np.ndarray) -> None:
         previous = self._last_counter

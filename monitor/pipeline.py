@@ -250,12 +250,17 @@ class FramedSource:
 
 def text_source(byte_source: Any, *, channels: tuple[str, ...] | None = None,
                 time_column: str | None = None, counter_column: str | None = None,
-                declared_rate: float | None = None) -> FramedSource:
-    """A FramedSource with the text framer and decoder (stdin keeps its first line)."""
+                declared_rate: float | None = None, clock: Any = None,
+                sequence: Any = None) -> FramedSource:
+    """A FramedSource with the text framer and decoder (stdin keeps its first line).
+
+    clock / sequence: monitor.devicetime unwrappers for the time and counter columns.
+    """
     from monitor.framing import TextFramer
 
     framer = TextFramer(drop_partial_first=not getattr(byte_source, "is_stdin", False))
-    decoder = TextDecoder(channels, time_column=time_column, counter_column=counter_column)
+    decoder = TextDecoder(channels, time_column=time_column, counter_column=counter_column,
+                          clock=clock, sequence=sequence)
     return FramedSource(byte_source, framer, decoder, declared_rate)
 
 

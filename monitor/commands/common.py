@@ -12,7 +12,7 @@ import os
 import time
 from typing import Any
 
-from monitor.binary_options import add_binary_options, binary_framing
+from monitor.binary_options import add_binary_options, binary_framing, text_time_options
 from monitor.errors import UserError
 
 DEFAULT_BAUD = 115200
@@ -182,7 +182,7 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
             source = text_source(byte_source, channels=getattr(args, "channels", None),
                                  time_column=getattr(args, "time_column", None),
                                  counter_column=getattr(args, "counter_column", None),
-                                 declared_rate=rate)
+                                 declared_rate=rate, **text_time_options(args))
     capacity = ring_capacity(getattr(args, "ring_seconds", DEFAULT_RING_SECONDS), rate)
     pipeline = Pipeline(source, chain_spec=spec, rate_hz=rate, ring_capacity=capacity)
     if record:

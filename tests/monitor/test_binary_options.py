@@ -113,3 +113,43 @@ def test_pty_board_through_cli_options_pipeline_and_recording(pty_board, tmp_pat
     t_dev = rows[:, 2]
     np.testing.assert_allclose(t_dev - t_dev[0], (keep - keep[0]) * 0.002, atol=1e-9)
     assert sum(line.startswith("# gap:") for line in lines) == 3
+
+
+def test_text_columns_take_the_same_units_and_wraparound(pty_board, tmp_path):
+    n = 600
+    t_ms = (65000 + 2 * np.arange(n)) % 65536          # 16-bit milliseconds, wraps at i = 268
+    seq = np.arange(n) % 256                           # 8-bit counter
+    lines = [f"{seq[i]},{t_ms[i]},{0.01 * i:.2f}\n".encode() for i in range(n) if i != 300]
+    args = parse("live", pty_board.path, "--channels", "seq,t_ms,load",
+                 "--time-column", "t_ms", "--time-unit", "ms", "--time-bits", "16",
+                 "--counter-column", "seq", "--counter-bits", "8", "--plain",
+                 "--record", str(tmp_path / "text.csv"))
+    pipeline = build_pipeline(args, args.source)
+    pipeline.start()
+    try:
+        pty_board.write(b"\n")
+        pty_board.play(lines, rate_hz=2000.0)
+        deadline = time.monotonic() + 20.0
+        while pipeline.status().frames < n - 1 and time.monotonic() < deadline:
+            time.sleep(0.02)
+    finally:
+        pipeline.stop()
+    status = pipeline.status()
+    assert status.frames == n - 1
+    assert status.dropped == 1 and status.gaps == 1
+    assert status.rate_origin == "device" and status.rate_hz == pytest.approx(500.0)
+    rows = [line.split(",") for line in (tmp_path / "text.csv").read_text().splitlines()
+            if line and line[0].isdigit()]
+    t_dev = np.array([float(r[2]) for r in rows])
+    counter = np.array([int(r[1]) for r in rows])
+    true_index = np.delete(np.arange(n), 300)
+    np.testing.assert_allclose(t_dev, 65.0 + 0.002 * true_index, atol=1e-9)  # no 65.5 s jump
+    np.testing.assert_array_equal(counter, true_index)                      # unwrapped past 255
+
+
+def test_time_options_need_the_column_they_describe():
+    with pytest.raises(UserError, match="--time-unit needs --time-column"):
+        build_pipeline(parse("live", "sim://", "--time-unit", "ms"), "sim://")
+    with pytest.raises(UserError, match="--counter-bits needs --counter-column"):
+        build_pipeline(parse("live", "/dev/ttyX", "--framing", "cobs", "--layout", "<H2f",
+                             "--fields", "n,a,b", "--counter-bits", "8"), "/dev/ttyX")
