@@ -328,7 +328,7 @@ class Recording:
                                      "timestamp); name one with --time-column NAME or give "
                                      "the sample rate with --rate HZ.")
             h.ignored_columns = tuple(c for i, c in enumerate(cols) if i not in numeric)
-            self._usecols = numeric
+            self._usecols = numeric if h.ignored_columns else None
             self._quote = '"'
             self._width = len(numeric)
             channels = [n for n in names if n != h.time_column]
@@ -511,6 +511,13 @@ class Recording:
                            dtype=np.float64)
         if table.shape != (len(lines), self._width):
             raise ValueError("wrong number of fields")
+        if self._usecols is not None:
+            # numpy ignores fields beyond the used columns: count them here (a line
+            # with quotes may hold the delimiter inside a field and is let through)
+            separators = len(self.header.columns) - 1
+            delimiter = self.header.delimiter
+            if any(line.count(delimiter) != separators and '"' not in line for line in lines):
+                raise ValueError("wrong number of fields")
         return table
 
     def _parse(self, lines: list[str]) -> tuple[np.ndarray, list[int] | None]:
