@@ -35,6 +35,15 @@ def minmax(values: np.ndarray, spb: int) -> tuple[np.ndarray, np.ndarray]:
     return mins, maxs
 
 
+def bucket_centres(t: np.ndarray, spb: int) -> np.ndarray:
+    """Mid-time of each bucket of `spb` samples of t (n,) -> (ceil(n / spb),)."""
+    first = t[::spb]
+    last = t[spb - 1::spb]
+    if len(last) < len(first):
+        last = np.append(last, t[-1])
+    return 0.5 * (first + last)
+
+
 def pack_minmax(x: np.ndarray, mins: np.ndarray, maxs: np.ndarray) -> np.ndarray:
     """Line-strip vertices per column. x: (b,), mins/maxs: (b, c) -> (c, 2b, 2) float32.
 
@@ -90,7 +99,7 @@ class BucketCache:
             # The oldest bucket is cut by the history's start: computed afresh every frame.
             start = aligned + spb
             t, values = history.slice(i0, min(start, i1))
-            head = (t[:1] - origin, *minmax(values, len(values)))
+            head = (bucket_centres(t, len(t)) - origin, *minmax(values, len(values)))
         body = self._body(history, start, i1, spb, origin) if start < i1 else empty
         return tuple(np.concatenate([h, b]) for h, b in zip(head, body, strict=True))
 
@@ -109,7 +118,7 @@ class BucketCache:
         t, values = history.slice(compute_from, i1)
         if len(t):
             new_min, new_max = minmax(values, spb)
-            x = np.concatenate([x, t[::spb] - origin])
+            x = np.concatenate([x, bucket_centres(t, spb) - origin])
             mins = np.concatenate([mins, new_min])
             maxs = np.concatenate([maxs, new_max])
         complete_end = compute_from + (len(t) // spb) * spb

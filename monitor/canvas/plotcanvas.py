@@ -22,6 +22,7 @@ from monitor.canvas.spectrum_panel import MAX_SEGMENTS, NPERSEG, SpectrumPanel, 
 from monitor.canvas.time_panel import TimePanel
 
 SPECTRUM_SAMPLES = (MAX_SEGMENTS + 1) * NPERSEG // 2
+BUCKETS_PER_COLUMN = 2   # 2 to 4 min/max buckets per pixel column: extremes land within a column
 
 
 @dataclass
@@ -133,7 +134,7 @@ class PlotCanvas:
         self.window = (i0, i1)
         k = len(self.channels)
         if state.decimate:
-            spb = samples_per_bucket(i1 - i0, self.layout.lanes[0].w)
+            spb = samples_per_bucket(i1 - i0, BUCKETS_PER_COLUMN * self.layout.lanes[0].w)
             x, mins, maxs = self.cache.update(history, i0, i1, spb, origin)
             verts = pack_minmax(x, mins, maxs)
             lo, hi = (np.fmin.reduce(mins, axis=0), np.fmax.reduce(maxs, axis=0)) if len(x) \
