@@ -159,11 +159,15 @@ def dc_gain(designs: StageDesign | Sequence[StageDesign], rate_hz: float | None 
 
 def poles_zeros(design: StageDesign) -> tuple[np.ndarray, np.ndarray]:
     """(zeros, poles) of a stage in the z-plane; empty for median and gain."""
-    from scipy import signal
-
     if design.sos is not None:
-        z, p, _ = signal.sos2zpk(design.sos)
-        return np.asarray(z, complex), np.asarray(p, complex)
+        zeros = np.concatenate([np.roots(row[:3]) for row in design.sos]).astype(complex)
+        poles = np.concatenate([np.roots(row[3:]) for row in design.sos]).astype(complex)
+        # zpk2sos pads with roots at z = 0 (odd orders, delays); cancel the common ones.
+        common = min(np.count_nonzero(zeros == 0), np.count_nonzero(poles == 0))
+        for _ in range(common):
+            zeros = np.delete(zeros, np.nonzero(zeros == 0)[0][0])
+            poles = np.delete(poles, np.nonzero(poles == 0)[0][0])
+        return zeros, poles
     if design.fir is not None:  # ones(N)/N: the N-th roots of unity except 1, poles at 0
         n = len(design.fir)
         return np.exp(2j * np.pi * np.arange(1, n) / n), np.zeros(n - 1, complex)
