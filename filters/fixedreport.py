@@ -143,11 +143,12 @@ def _response_errors(plan: StagePlan, quantized: np.ndarray) -> tuple[tuple[floa
     from scipy.signal import freqz_sos
 
     freqs = np.array((0.0, *plan.freqs_hz))
-    _, exact = freqz_sos(plan.sos, worN=freqs, fs=plan.rate_hz or 1.0)
-    _, got = freqz_sos(quantized, worN=freqs, fs=plan.rate_hz or 1.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        _, exact = freqz_sos(plan.sos, worN=freqs, fs=plan.rate_hz or 1.0)
+        _, got = freqz_sos(quantized, worN=freqs, fs=plan.rate_hz or 1.0)
     out = []
     for f, e, g in zip(freqs, np.abs(exact), np.abs(got), strict=True):
-        if e > SIGNIFICANT_GAIN:
+        if np.isfinite(e) and np.isfinite(g) and e > SIGNIFICANT_GAIN:
             out.append((float(f), float(20 * np.log10(max(g, 1e-300) / e))))
     return tuple(out)
 

@@ -93,9 +93,9 @@ def header(plan: ExportPlan) -> str:
         lines += [m for j, p in enumerate(ch.plans) if (m := _member(p, j, "PFX_sample",
                                                                     plan.fixed))]
         lines += [f"}} PFX_{ch.ident}_chain;", "",
-                  "/* Clear the state: the next step starts every stage at its input. */",
+                  "/* Prepare a new state: the next step starts every stage at its input. */",
                   f"void PFX_{ch.ident}_init(PFX_{ch.ident}_chain *c);",
-                  "/* Forget the state (as init, but only marks it): restart at the next step. */",
+                  "/* Forget the state (after a fault, say): restart at the next step. */",
                   f"void PFX_{ch.ident}_reset(PFX_{ch.ident}_chain *c);",
                   f"/* Filter one sample of channel {ch.name}. */",
                   f"PFX_sample PFX_{ch.ident}_step(PFX_{ch.ident}_chain *c, PFX_sample x);"]
@@ -412,5 +412,6 @@ def source(plan: ExportPlan) -> str:
             *[f"    {step}" for _, step in steps], "    return v;", "}", "",
             f"void {pfx}_reset({pfx}_chain *c)", "{", "    c->started = 0;", "}", "",
             f"void {pfx}_init({pfx}_chain *c)", "{",
-            f"    static const {pfx}_chain cleared;", "    *c = cleared;", "}", ""]))
+            "    /* the first step primes every state field, so marking is enough */",
+            "    c->started = 0;", "}", ""]))
     return "\n".join(parts).replace("PFX_", plan.prefix + "_")

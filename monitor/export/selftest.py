@@ -61,6 +61,10 @@ int main(void)
                 p++;
             }}
         }}
+        if (*p != '\\0' && *p != '\\n' && *p != '\\r') {{
+            fprintf(stderr, "line %ld: expected %d comma-separated values\\n", row, COLUMNS);
+            return 1;
+        }}
 {steps}
     }}
     return 0;

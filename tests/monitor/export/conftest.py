@@ -1,0 +1,89 @@
+"""Fixtures for the export tests: export a chain into a temporary directory and build it
+with the real gcc (skipped only outside CI when gcc is absent)."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import subprocess
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+CFLAGS = ["-std=c99", "-O2", "-Wall", "-Wextra", "-Werror", "-pedantic"]
+
+
+def need(program: str) -> str:
+    """Path of `program`; skip when absent, unless CI is set (then fail)."""
+    path = shutil.which(program)
+    if path is None:
+        if os.environ.get("CI"):
+            pytest.fail(f"{program} is required under CI")
+        pytest.skip(f"{program} is not installed")
+    return path
+
+
+@dataclass
+class Built:
+    """An exported and compiled chain: `run(rows)` feeds the self-test."""
+
+    directory: Path
+    spec: object
+    plan: object
+    report: object
+    texts: dict[str, str]
+    selftest: Path
+
+    def run(self, rows: np.ndarray) -> np.ndarray:
+        """rows: (n, channels) floats or ints -> the self-test's (n, channels) output."""
+        rows = np.asarray(rows)
+        fmt = "%d" if self.plan.fixed else "%.17g"
+        text = "\n".join(",".join(fmt % v for v in row) for row in rows) + "\n"
+        done = subprocess.run([str(self.selftest)], input=text, capture_output=True,
+                              text=True, check=True, timeout=60)
+        dtype = np.int64 if self.plan.fixed else np.float64
+        return np.loadtxt(done.stdout.splitlines(), delimiter=",", dtype=dtype, ndmin=2)
+
+    def compile_main(self, main_c: str, name: str = "harness") -> Path:
+        """Compile an extra main against NAME.c; returns the executable."""
+        src = self.directory / f"{name}.c"
+        src.write_text(main_c)
+        exe = self.directory / name
+        subprocess.run(["gcc", *CFLAGS, "-o", str(exe), str(src),
+                        str(self.directory / f"{self.plan.prefix}.c")], check=True,
+                       capture_output=True, timeout=120)
+        return exe
+
+
+@pytest.fixture
+def export_build(tmp_path):
+    """export_build(chain_text, target, channels=None, full_scale=1.0, double=False,
+    rate=250.0, seconds=2.0) -> Built (files written and the self-test compiled)."""
+    gcc = need("gcc")
+
+    def make(chain_text: str, target: str, channels=None, full_scale=1.0, double=False,
+             rate: float = 250.0, seconds: float = 2.0, name: str = "weigh") -> Built:
+        from filters.chainfile import parse_chain
+        from filters.fixedreport import report_for_plans
+        from monitor.export import export_texts, write_files
+        from monitor.export.plan import build_plan, default_channels
+
+        spec = parse_chain(chain_text)
+        channels = channels or default_channels(spec)
+        scales = {c: full_scale for c in channels}
+        plan = build_plan(spec, channels, rate, target, name, scales, double)
+        report = report_for_plans({c.name: c.plans for c in plan.channels}, rate,
+                                  plan.report_target, scales)
+        texts = export_texts(spec, plan, report, "test.toml", seconds)
+        directory = tmp_path / f"{target}{'-double' if double else ''}"
+        write_files(directory, texts)
+        exe = directory / f"{name}_selftest"
+        done = subprocess.run([gcc, *CFLAGS, "-o", str(exe), str(directory / f"{name}_selftest.c"),
+                               str(directory / f"{name}.c")], capture_output=True, text=True,
+                              timeout=120)
+        assert done.returncode == 0, done.stderr
+        return Built(directory, spec, plan, report, texts, exe)
+
+    return make
