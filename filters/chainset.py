@@ -75,6 +75,7 @@ class ChainSet:
         # one group over all columns in order: no gather/scatter per block
         self._whole = (self._groups[0][2] if len(self._groups) == 1
                        and len(self.channels) > 0 else None)
+        self._width = len(self.channels)
 
     def _design(self, index: int, stage: StageSpec) -> Any:
         from filters.design import design_stage
@@ -95,6 +96,16 @@ class ChainSet:
 
     def process(self, values: np.ndarray) -> np.ndarray:
         """Filter one block. values: (n, channels) float64 -> (n, channels) float64, a new array."""
+        whole = self._whole
+        if (whole is not None and type(values) is np.ndarray and values.ndim == 2
+                and values.shape[1] == self._width and values.dtype == np.float64):
+            # the common live case, one short finite block through linear stages only
+            filtered = whole.step(values)
+            if filtered is not None:
+                return filtered
+        return self._process(values)
+
+    def _process(self, values: np.ndarray) -> np.ndarray:
         x = raw = np.asarray(values, dtype=np.float64)
         k = len(self.channels)
         if x.ndim != 2 or x.shape[1] != k:
@@ -112,7 +123,7 @@ class ChainSet:
                 fresh = np.isnan(previous) & finite.any(axis=0) & (first > 0)
                 if fresh.any():  # a channel's first finite sample: start it there exactly
                     edges = [0, *sorted(set(first[fresh].tolist())), n]
-                    return np.vstack([self.process(raw[a:b])
+                    return np.vstack([self._process(raw[a:b])
                                       for a, b in zip(edges, edges[1:], strict=False)])
                 missing = ~finite
                 x, never = self._fill_missing(x, finite, previous)

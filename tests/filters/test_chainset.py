@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from streaming_reference import RATE_HZ, design, loop_stage, weigh_signal
 
-from filters.blockrun import FUSED_MAX_SAMPLES
+from filters.blockrun import FUSED_CHUNK
 from filters.chainfile import parse_chain
 from filters.chainset import ChainSet
 from filters.spec import ChainSpec, StageSpec
@@ -114,7 +114,7 @@ REFERENCE = {name: np.column_stack([loop_chain(spec, c, DATA[:, k])
 
 @settings(max_examples=60, deadline=None)
 @given(name=st.sampled_from(sorted(CHAINS)),
-       sizes=st.lists(st.integers(0, FUSED_MAX_SAMPLES + 12), max_size=30))
+       sizes=st.lists(st.integers(0, 2 * FUSED_CHUNK + 12), max_size=30))
 def test_blocks_equal_a_per_sample_loop(name, sizes):
     chain = ChainSet(CHAINS[name], CHANNELS, RATE_HZ)
     got = run_blocks(chain, DATA, sizes)
@@ -311,7 +311,9 @@ def test_reset_restarts_every_stage():
 
 # -- missing samples ------------------------------------------------------------------
 
-def test_a_missing_sample_passes_as_nan_and_does_not_poison_the_state():
+@pytest.mark.parametrize("name", ["weigh", "linear"])
+def test_a_missing_sample_passes_as_nan_and_does_not_poison_the_state(name):
+    spec = CHAINS[name]
     x = DATA.copy()
     holes = [(50, 0), (51, 0), (300, 1), (301, 2), (302, 2), (650, 0)]
     held = x.copy()
@@ -320,9 +322,9 @@ def test_a_missing_sample_passes_as_nan_and_does_not_poison_the_state():
         held[row, col] = held[row - 1, col]  # the policy: the stages see the last finite value
     x[400, 1] = np.inf
     held[400, 1] = held[399, 1]
-    chain = ChainSet(WEIGH_CHAIN, CHANNELS, RATE_HZ)
-    got = run_blocks(chain, x, [51, 1, 10, 300])
-    want = ChainSet(WEIGH_CHAIN, CHANNELS, RATE_HZ).process(held)
+    chain = ChainSet(spec, CHANNELS, RATE_HZ)
+    got = run_blocks(chain, x, [45, 5, 1, 10, 7, 3, 300])
+    want = ChainSet(spec, CHANNELS, RATE_HZ).process(held)
     bad = ~np.isfinite(x)
     assert np.array_equal(np.isnan(got), np.isnan(x)) and got[400, 1] == np.inf
     np.testing.assert_allclose(got[~bad], want[~bad], atol=1e-12 * 30)
