@@ -57,6 +57,13 @@ _CCITT_TABLE = _normal_table(0x1021, 16)
 _CRC32_TABLE = _reflected_table(0xEDB88320)       # 0x04C11DB7 bit-reversed
 
 
+# reflected algorithms for crc_rows: (table, init, xorout)
+_REFLECTED = {
+    "crc16-modbus": (_MODBUS_TABLE, 0xFFFF, 0),
+    "crc32": (_CRC32_TABLE, 0xFFFFFFFF, 0xFFFFFFFF),
+}
+
+
 def crc16_ccitt_false(data: bytes) -> int:
     """CRC-16/CCITT-FALSE of `data` (poly 0x1021, init 0xFFFF, no reflection, no xorout)."""
     return binascii.crc_hqx(data, 0xFFFF)
@@ -135,23 +142,18 @@ def crc_rows(name: str, rows: np.ndarray) -> np.ndarray:
 
     rows = np.ascontiguousarray(rows, dtype=np.uint8)
     n, length = rows.shape
-    if name == "crc16-ccitt":
+    if name == "crc16-ccitt":            # MSB first
         table = np.asarray(_CCITT_TABLE, dtype=np.uint32)
         crc = np.full(n, 0xFFFF, dtype=np.uint32)
         for j in range(length):
             crc = ((crc << 8) & 0xFFFF) ^ table[(crc >> 8) ^ rows[:, j]]
         return crc
-    if name == "crc16-modbus":
-        table = np.asarray(_MODBUS_TABLE, dtype=np.uint32)
-        crc = np.full(n, 0xFFFF, dtype=np.uint32)
+    if name in _REFLECTED:               # LSB first
+        table_list, init, xorout = _REFLECTED[name]
+        table = np.asarray(table_list, dtype=np.uint32)
+        crc = np.full(n, init, dtype=np.uint32)
         for j in range(length):
             crc = (crc >> 8) ^ table[(crc ^ rows[:, j]) & 0xFF]
-        return crc
-    if name == "crc32":
-        table = np.asarray(_CRC32_TABLE, dtype=np.uint32)
-        crc = np.full(n, 0xFFFFFFFF, dtype=np.uint32)
-        for j in range(length):
-            crc = (crc >> 8) ^ table[(crc ^ rows[:, j]) & 0xFF]
-        return crc ^ np.uint32(0xFFFFFFFF)
+        return crc ^ np.uint32(xorout)
     crc_algorithm(name)  # raises for unknown names
     raise ValueError(f"crc '{name}' has no checksum to compute")

@@ -7,5 +7,18 @@ target checks as booleans, e.g. `ratio_ok`). `quick=True` shrinks the data so
 the test suite can smoke-test the bench; targets are judged on full runs only.
 """
 
+import time
+from collections.abc import Callable
+
 PARTS: tuple[str, ...] = ("core", "filters", "replay", "binary", "export", "ui", "render")
 DEFAULT_PARTS: tuple[str, ...] = ("core", "filters", "replay", "binary", "export", "ui")
+
+
+def best_of(repeats: int, work: Callable[[], object]) -> float:
+    """Shortest wall time of `repeats` runs of work() (s): the least disturbed run."""
+    best = float("inf")
+    for _ in range(repeats):
+        start = time.perf_counter()
+        work()
+        best = min(best, time.perf_counter() - start)
+    return best
