@@ -235,6 +235,7 @@ def settling_time_s(designs: StageDesign | Sequence[StageDesign],
 
     The band is 2 % of the final value by default (common practice); when the final
     value is zero (high-pass, band-pass, DC block) it is 2 % of the peak excursion.
+    math.inf when the response is still outside the band after the longest simulation.
     """
     chain = _as_chain(designs)
     if not chain:
@@ -245,7 +246,11 @@ def settling_time_s(designs: StageDesign | Sequence[StageDesign],
     if scale == 0:
         return 0.0
     outside = np.nonzero(np.abs(y - final) > fraction * scale)[0]
-    return 0.0 if outside.size == 0 else (int(outside[-1]) + 1) / chain[0].rate_hz
+    if outside.size == 0:
+        return 0.0
+    if outside[-1] == len(y) - 1:
+        return math.inf
+    return (int(outside[-1]) + 1) / chain[0].rate_hz
 
 
 def noise_gain(designs: StageDesign | Sequence[StageDesign]) -> float:
@@ -265,6 +270,17 @@ def characteristic_hz(design: StageDesign) -> float | None:
         if key in design.derived:
             return float(design.derived[key])
     return None
+
+
+def default_analysis_hz(designs: StageDesign | Sequence[StageDesign], rate_hz: float) -> float:
+    """Where lag is quoted by default: the chain's first cutoff, else the centre of its
+    first band-pass, else 1 Hz (never at or above a quarter of the rate)."""
+    for design in _as_chain(designs):
+        if "cutoff_hz" in design.derived:
+            return min(float(design.derived["cutoff_hz"]), rate_hz / 4)
+        if design.kind == "rlc-bandpass" or design.params.get("band") == "bandpass":
+            return min(float(design.derived["centre_hz"]), rate_hz / 4)
+    return min(1.0, rate_hz / 4)
 
 
 def reference_hz(designs: StageDesign | Sequence[StageDesign]) -> float | None:

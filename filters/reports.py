@@ -36,7 +36,7 @@ class Costs:
     group_delay_ms:   group delay at at_hz.
     phase_lag_deg:    phase lag at at_hz (positive = output behind input).
     phase_delay_ms:   how far a sine at at_hz lags: phase lag / (360 at_hz).
-    settling_s:       step settling time to 2 % (common practice).
+    settling_s:       step settling time to 2 % (common practice); inf if beyond the simulation.
     noise_gain:       white-noise power gain sum(h[n]^2); noise_gain_db = 10 log10 of it.
     stability_margin: 1 - max |pole|.
     """
@@ -114,7 +114,7 @@ def _costs_dict(c: Costs) -> dict[str, object]:
     return {
         "at_hz": c.at_hz, "dc_gain": c.dc_gain, "minus3db_hz": list(c.minus3db_hz),
         "group_delay_ms": c.group_delay_ms, "phase_lag_deg": c.phase_lag_deg,
-        "phase_delay_ms": c.phase_delay_ms, "settling_s": c.settling_s,
+        "phase_delay_ms": c.phase_delay_ms, "settling_s": _finite(c.settling_s),
         "noise_gain": c.noise_gain, "noise_gain_db": _finite(c.noise_gain_db),
         "stability_margin": c.stability_margin,
         "table": [{"freq_hz": r.freq_hz, "mag_db": _finite(r.mag_db), "phase_deg": r.phase_deg,

@@ -29,11 +29,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="sample rate to design for (default: the chain file's rate_hz)")
     parser.add_argument("--json", action="store_true", help="print one JSON object")
     parser.add_argument("--at", type=float, metavar="HZ",
-                        help="frequency for the lag figures (default: the first cutoff or "
-                             "centre of the chain, else 1 Hz)")
+                        help="frequency for the lag figures (default: the chain's first "
+                             "cutoff, else the centre of its first band-pass, else 1 Hz)")
     parser.add_argument("--channels", type=channel_list, metavar="NAMES",
                         help="channels to analyse, comma separated (default: those the chain "
                              "names, plus 'other channels' when a stage selects every channel)")
+    parser.add_argument("--target", choices=("c-float", "c-q15", "c-q31"),
+                        help="also report what exporting to this C target costs: quantized "
+                             "poles, response error, headroom (see tunetrace export)")
 
 
 def channels_of(spec: Any) -> list[str]:
@@ -55,7 +58,7 @@ def _stages_for(spec: Any, channel: str) -> list[int]:
 
 
 def run(args: argparse.Namespace) -> int:
-    from filters.analysis import reference_hz
+    from filters.analysis import default_analysis_hz
     from filters.design import design_stage
     from filters.reports import chain_report, stage_report
     from monitor.commands.common import load_chain_file
@@ -75,26 +78,42 @@ def run(args: argparse.Namespace) -> int:
         except ValueError as exc:
             raise UserError(f"{args.chain}: stage {number} ({stage.kind}): "
                             f"{str(exc).rstrip('.')}.") from None
-    at = _analysis_frequency(args.at, designs, rate, reference_hz)
+    at = _analysis_frequency(args.at, designs, rate, default_analysis_hz)
     stage_reports = [stage_report(d, at, index=i) for i, d in enumerate(designs)]
     channels = list(args.channels) if args.channels else channels_of(spec)
     chains = []
     for channel in channels:
         indices = [i for i in _stages_for(spec, channel) if not spec.stages[i].bypass]
         chains.append(chain_report(channel, [(i, designs[i]) for i in indices], rate, at))
+    quantization = _quantization(args.target, spec, designs, channels, rate)
     if args.json:
-        print(json.dumps(_json(args.chain, rate, origin, at, spec, stage_reports, chains),
-                         allow_nan=False))
+        out = _json(args.chain, rate, origin, at, spec, stage_reports, chains)
+        if quantization is not None:
+            out["quantization"] = quantization.to_dict()
+        print(json.dumps(out, allow_nan=False))
     else:
         print(_text(args.chain, rate, origin, at, spec, stage_reports, chains))
+        if quantization is not None:
+            print("\n" + quantization.format_text())
     return 0
 
 
-def _analysis_frequency(given: float | None, designs: list, rate: float, reference) -> float:
+def _quantization(target: str | None, spec: Any, designs: list, channels: list[str],
+                  rate: float) -> Any:
+    """The export quantization report (filters.fixedreport) for --target, else None."""
+    if target is None:
+        return None
+    from filters.fixedreport import quantization_report
+
+    per_channel = {c: [(i, designs[i]) for i in _stages_for(spec, c) if not spec.stages[i].bypass]
+                   for c in channels}
+    return quantization_report(per_channel, rate, target)
+
+
+def _analysis_frequency(given: float | None, designs: list, rate: float, default) -> float:
     nyquist = rate / 2
     if given is None:
-        ref = reference(designs) if designs else None
-        return ref if ref is not None and ref < nyquist else min(1.0, nyquist / 2)
+        return default(designs, rate)
     if not (math.isfinite(given) and 0 <= given < nyquist):
         raise UserError(f"--at {given:g} is outside the allowed range 0 <= HZ < {nyquist:g} "
                         f"(the Nyquist frequency at {rate:g} Hz).")
@@ -170,11 +189,12 @@ def _cost_lines(costs) -> list[str]:
     edges = f"-3 dB at {edges} Hz" if edges else "-3 dB: none (flat)"
     noise = ("not linear" if costs.noise_gain is None
              else f"{costs.noise_gain:.4g} ({_g(costs.noise_gain_db, 3)} dB)")
+    settle = (f"settles to 2 % in {costs.settling_s:.3g} s" if math.isfinite(costs.settling_s)
+              else "does not settle to 2 % within the simulated response")
     return [
         f"  at {costs.at_hz:g} Hz: group delay {costs.group_delay_ms:.3g} ms, phase lag "
         f"{costs.phase_lag_deg:.1f} deg ({costs.phase_delay_ms:.3g} ms)",
-        f"  {edges}; DC gain {_g(costs.dc_gain, 6)}; settles to 2 % in "
-        f"{costs.settling_s:.3g} s",
+        f"  {edges}; DC gain {_g(costs.dc_gain, 6)}; {settle}",
         f"  noise gain {noise}; stability margin {costs.stability_margin:.4g}",
     ]
 

@@ -176,3 +176,14 @@ def test_reports_are_json_ready():
     assert data["stages"] == [0, 1, 2, 3] and any("median" in n for n in data["notes"])
     assert report.costs.group_delay_ms == pytest.approx(1e3 * A.group_delay_s(chain, 8.0))
     assert stage_report(design("median", window=5), 8.0).costs.noise_gain is None
+
+
+def test_default_analysis_frequency_and_unsettled_response():
+    assert A.default_analysis_hz([design("notch", freq_hz=50.0, q=9.0),
+                                  design("ema", time_constant_s=0.1)], RATE) == pytest.approx(
+        1 / (2 * math.pi * 0.1))
+    assert A.default_analysis_hz([design("rlc-bandpass", centre_hz=18.0, q=3.0)], RATE) == 18.0
+    assert A.default_analysis_hz([design("median", window=3)], RATE) == 1.0
+    assert A.default_analysis_hz([], 2.0) == 0.5
+    # An EMA whose time constant exceeds the longest simulated response never settles.
+    assert A.settling_time_s(design("ema", alpha=1e-7)) == math.inf

@@ -218,3 +218,18 @@ def test_warning_when_sample_time_too_long_for_the_prototype():
     assert not any("too long" in w for w in design("rc-lowpass", cutoff_hz=60.0).warnings)
     assert not any("too long" in w for w in design("rc-lowpass", cutoff_hz=40.0,
                                                    method="matched").warnings)
+
+
+def test_any_pole_on_or_outside_the_unit_circle_is_refused(monkeypatch):
+    # No method maps a stable prototype outside the unit circle, so the safety net is
+    # exercised with a discretization replaced by one that returns a pole at |z| = 1.
+    import filters.analog_design as analog_design
+    from filters.discretize import DigitalZpk
+
+    def unstable(proto, t, method, prewarp_hz=None):
+        return DigitalZpk(np.array([], complex), np.array([1.0 + 0j]), 1.0, t)
+
+    monkeypatch.setattr(analog_design, "discretize", unstable)
+    with pytest.raises(ValueError, match="method = 'zoh' puts a pole on or outside the unit "
+                                         "circle .*use tustin or a higher rate"):
+        design("rc-lowpass", cutoff_hz=5.0, method="zoh")
