@@ -50,10 +50,11 @@ class StageQuantization:
     response_error_db: tuple[tuple[float, float], ...]   # (frequency Hz, error dB)
     peak_gain: float
     error_bound: float
+    failure: str = ""     # why the target cannot represent the stage at all
 
     @property
     def stable(self) -> bool:
-        return all(s.pole_radius < 1.0 for s in self.sections)
+        return not self.failure and all(s.pole_radius < 1.0 for s in self.sections)
 
     @property
     def worst_error_db(self) -> float:
@@ -89,6 +90,17 @@ class QuantizationReport:
     def ok(self) -> bool:
         return not self.fatal and not self.problems
 
+    def to_dict(self) -> dict[str, object]:
+        """A JSON-ready summary: target, ok, fatal, problems, warnings, per-channel bounds."""
+        return {"target": self.target, "ok": self.ok, "fatal": list(self.fatal),
+                "problems": list(self.problems), "warnings": list(self.warnings),
+                "channels": {c.channel: {"error_bound_full_scale": c.error_bound,
+                                         "worst_response_error_db":
+                                             max((s.worst_error_db for s in c.stages),
+                                                 default=0.0)}
+                             for c in self.channels},
+                "text": self.format_text()}
+
     def format_text(self) -> str:
         """A readable multi-line report."""
         fixed = self.target in ("c-q15", "c-q31")
@@ -98,7 +110,13 @@ class QuantizationReport:
             lines.append(f"channel {ch.channel}{scale}:")
             for st in ch.stages:
                 lines.append(f"  {st.label} [{st.form}]")
+                if st.failure:
+                    lines.append(f"    cannot be represented: {st.failure}")
                 for i, sec in enumerate(st.sections, 1):
+                    if st.form == "gain":
+                        lines.append(f"    scale {sec.coefficients[0]} (shift {sec.shift}), "
+                                     f"offset {sec.coefficients[1]}")
+                        continue
                     coefs = " ".join(str(c) if isinstance(c, int) else f"{c:.9g}"
                                      for c in sec.coefficients)
                     shift = f" shift {sec.shift}" if fixed else ""
@@ -109,7 +127,8 @@ class QuantizationReport:
                     where = "DC" if f == 0 else f"{f:g} Hz"
                     lines.append(f"    response error at {where}: {e:+.4f} dB")
                 if fixed:
-                    headroom = -20 * math.log10(st.peak_gain) if st.peak_gain > 0 else math.inf
+                    headroom = (-20 * math.log10(st.peak_gain) + 0.0 if st.peak_gain > 0
+                                else math.inf)
                     lines.append(f"    headroom {headroom:+.2f} dB (peak gain {st.peak_gain:.3f}); "
                                  f"error bound here {st.error_bound * 100:.4f} % of full scale")
             if fixed:
@@ -203,28 +222,37 @@ def _channel(channel: str, plans: Sequence[StagePlan], target: str, full_scale: 
     err = 0.5  # LSB: rounding the input into Q
     stages = []
     for plan in plans:
-        if plan.form == "biquads":
-            st = _biquad_stage(plan, fmt, dtype, err)
-            err = st.error_bound
-        else:
-            peak, coefs, shift = 1.0, (), 0
-            if plan.form == "moving-average":
-                err += 0.5
-            elif plan.form == "gain":
-                peak = abs(plan.scale)
-                if fmt is not None:
-                    fs = fix_stage(plan, fmt, full_scale)
-                    held = fs.scale / float(1 << (fmt.frac - fs.scale_shift))
-                    err = abs(held) * err + 1.0 + abs(plan.scale - held) * (1 << fmt.frac)
-                    coefs, shift = (fs.scale, fs.offset), fs.scale_shift
-            sections = (SectionQuantization(coefs, shift, 0.0, peak),) if coefs else ()
-            st = StageQuantization(plan.label, plan.form, sections, (), peak, err)
+        try:
+            st = _stage(plan, fmt, dtype, err, full_scale)
+        except ValueError as exc:
+            st = StageQuantization(plan.label, plan.form, (), (), 1.0, err, str(exc))
+        err = st.error_bound
         stages.append(st)
     if fmt is not None:
         lsb = float(1 << fmt.frac)
         stages = [StageQuantization(s.label, s.form, s.sections, s.response_error_db,
-                                    s.peak_gain, s.error_bound / lsb) for s in stages]
+                                    s.peak_gain, s.error_bound / lsb, s.failure)
+                  for s in stages]
     return ChannelQuantization(channel, full_scale, tuple(stages))
+
+
+def _stage(plan: StagePlan, fmt: QFormat | None, dtype: type, err: float, full_scale: float
+           ) -> StageQuantization:
+    """One stage's facts; err (LSB) is the error bound at the stage input."""
+    if plan.form == "biquads":
+        return _biquad_stage(plan, fmt, dtype, err)
+    peak, coefs, shift = 1.0, (), 0
+    fs = fix_stage(plan, fmt, full_scale) if fmt is not None else None  # ValueError: can't
+    if plan.form == "moving-average":
+        err += 0.5
+    elif plan.form == "gain":
+        peak = abs(plan.scale)
+        if fmt is not None and fs is not None:
+            held = fs.scale / float(1 << (fmt.frac - fs.scale_shift))
+            err = abs(held) * err + 1.0 + abs(plan.scale - held) * (1 << fmt.frac)
+            coefs, shift = (fs.scale, fs.offset), fs.scale_shift
+    sections = (SectionQuantization(coefs, shift, 0.0, peak),) if coefs else ()
+    return StageQuantization(plan.label, plan.form, sections, (), peak, err)
 
 
 def report_for_plans(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, target: str,
@@ -240,7 +268,9 @@ def report_for_plans(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, t
     for ch in channels:
         for st in ch.stages:
             where = f"channel {ch.channel}, {st.label}"
-            if not st.stable:
+            if st.failure:
+                fatal.append(f"{where}: {st.failure}")
+            elif not st.stable:
                 radius = max(s.pole_radius for s in st.sections)
                 fatal.append(f"{where}: the {target} coefficients put a pole at radius "
                              f"{radius:.6f}, on or outside the unit circle, so it would not settle")
@@ -248,8 +278,9 @@ def report_for_plans(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, t
                 problems.append(f"{where}: the {target} coefficients move the response by "
                                 f"{st.worst_error_db:.2f} dB (limit {RESPONSE_ERROR_LIMIT_DB} dB)")
             if fixed and st.stable and st.peak_gain > 1.0 + 1e-9:
-                warnings.append(f"{where}: a section can reach {st.peak_gain:.3f} x its input, so "
-                                f"inputs above {1 / st.peak_gain:.3f} of full scale can saturate")
+                warnings.append(f"{where}: a worst-case input can drive a section to "
+                                f"{st.peak_gain:.3f} x its input, so inputs above "
+                                f"{1 / st.peak_gain:.3f} of full scale can saturate")
         if fixed and all(s.stable for s in ch.stages) and ch.error_bound > ERROR_BOUND_LIMIT:
             problems.append(f"channel {ch.channel}: the {target} rounding error can reach "
                             f"{ch.error_bound * 100:.3f} % of full scale "
@@ -271,8 +302,14 @@ def _suggestion(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, target
 
 def quantization_report(designs: Sequence[Any] | Mapping[str, Sequence[Any]], rate_hz: float,
                         target: str, full_scale: float = 1.0) -> QuantizationReport:
-    """Report for StageDesigns: one chain (a sequence) or per channel (a mapping name -> list)."""
+    """Report for StageDesigns: one chain (a sequence) or per channel (a mapping name -> list).
+
+    Items are StageDesigns or (file index, StageDesign) pairs as ChainSet.designs_for gives;
+    full_scale (units per +-1.0) matters only for gain offsets in fixed point.
+    """
     per_channel = designs if isinstance(designs, Mapping) else {"chain": designs}
-    plans = {name: [plan_stage(d, label=f"stage {i + 1}: {d.kind}") for i, d in enumerate(ds)]
-             for name, ds in per_channel.items()}
+    plans = {}
+    for name, items in per_channel.items():
+        pairs = [item if isinstance(item, tuple) else (i, item) for i, item in enumerate(items)]
+        plans[name] = [plan_stage(d, label=f"stage {i + 1}: {d.kind}") for i, d in pairs]
     return report_for_plans(plans, rate_hz, target, {name: full_scale for name in plans})
