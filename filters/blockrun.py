@@ -58,7 +58,9 @@ class StageRun:
             if stage is not None:
                 self._segments.append(stage)
         only = self._segments[0] if len(self._segments) == 1 else None
-        self._single = only if isinstance(only, _Fused) else None
+        self.lane = only if isinstance(only, _Fused) else None
+        if self.lane is not None:
+            self.lane.run = self
 
     @property
     def bounds(self) -> np.ndarray:
@@ -69,19 +71,6 @@ class StageRun:
     @bounds.setter
     def bounds(self, value: np.ndarray) -> None:
         self._ends = [np.array(value, dtype=np.float64)]
-
-    def step(self, x: np.ndarray) -> np.ndarray | None:
-        """Fast lane for a run that is one fused segment: a short block (n <= FUSED_CHUNK)
-        in one matrix product; None (nothing changed) when the lane does not apply:
-        a stage not started, a longer block, or a non-finite sample."""
-        single = self._single
-        if single is None:
-            return None
-        done = single.step(x)
-        if done is None:
-            return None
-        self._ends = [done[1]]
-        return done[0]
 
     def process(self, x: np.ndarray) -> np.ndarray:
         """Run one block x: (n, width) float64, n >= 1 -> (n, width); x is not modified."""
@@ -123,6 +112,7 @@ class _Fused:
 
     def __init__(self, stages: list[LinearStage], width: int) -> None:
         self.stages = stages
+        self.run: StageRun | None = None  # the run this segment is all of, if any
         self.state_dim = sum(s.state_dim for s in stages)
         self._work = np.zeros((self.state_dim + FUSED_CHUNK, width))
         self._matrices: dict[int, np.ndarray] = {}
@@ -132,9 +122,10 @@ class _Fused:
             stage.bind(self._work[offset:offset + stage.state_dim])
             offset += stage.state_dim
 
-    def step(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
-        """One short block: (y (n, width), bounds (len(stages) + 1, width)), or None
-        with the state untouched (not started, n > FUSED_CHUNK or n == 0, non-finite x)."""
+    def step(self, x: np.ndarray) -> np.ndarray | None:
+        """Fast lane when this segment is a whole run: one short block x (n, width) in one
+        matrix product -> y (n, width), the run's bounds updated; or None with nothing
+        changed (a stage not started, n > FUSED_CHUNK or n == 0, a non-finite sample)."""
         n = x.shape[0]
         if not self._warm or not 0 < n <= FUSED_CHUNK:
             return None
@@ -150,7 +141,8 @@ class _Fused:
             return None
         work[:dim] = result[:dim]
         top = dim + 1 + len(self.stages)
-        return result[top:], result[dim:top]
+        self.run._ends = [result[dim:top]]  # type: ignore[union-attr]
+        return result[top:]
 
     def process(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """x (n, width), n >= 1, finite -> (y (n, width), each stage's last output

@@ -76,6 +76,7 @@ class ChainSet:
         self._whole = (self._groups[0][2] if len(self._groups) == 1
                        and len(self.channels) > 0 else None)
         self._width = len(self.channels)
+        self._lane = self._whole.lane if self._whole is not None else None
 
     def _design(self, index: int, stage: StageSpec) -> Any:
         from filters.design import design_stage
@@ -96,11 +97,11 @@ class ChainSet:
 
     def process(self, values: np.ndarray) -> np.ndarray:
         """Filter one block. values: (n, channels) float64 -> (n, channels) float64, a new array."""
-        whole = self._whole
-        if (whole is not None and type(values) is np.ndarray and values.ndim == 2
+        lane = self._lane
+        if (lane is not None and type(values) is np.ndarray and values.ndim == 2
                 and values.shape[1] == self._width and values.dtype == np.float64):
             # the common live case, one short finite block through linear stages only
-            filtered = whole.step(values)
+            filtered = lane.step(values)
             if filtered is not None:
                 return filtered
         return self._process(values)
