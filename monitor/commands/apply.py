@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 
@@ -49,12 +50,28 @@ class _ProgressBar:
             self.stream.flush()
 
 
+def _check_output(path: str, force: bool) -> None:
+    """UserError (exit 2) now if `path` cannot become the output file."""
+    from replay.writer import open_error_sentence
+
+    problem: OSError | None = None
+    if os.path.isdir(path):
+        problem = IsADirectoryError(path)
+    elif os.path.exists(path) and not force:
+        problem = FileExistsError(path)
+    elif not os.path.isdir(os.path.dirname(os.path.abspath(path))):
+        problem = FileNotFoundError(path)
+    if problem is not None:
+        raise UserError(open_error_sentence(problem, path, what="output"))
+
+
 def run(args: argparse.Namespace) -> int:
     from monitor.commands.common import declared_rate, parse_chain_text, read_chain_text
     from replay.offline import apply_chain
     from replay.reader import RecordingError, read_recording
     from replay.writer import open_error_sentence
 
+    _check_output(args.output, args.force)
     chain_text = read_chain_text(args.chain)
     spec = parse_chain_text(chain_text, args.chain)
     rate = declared_rate(args, spec, args.chain)
