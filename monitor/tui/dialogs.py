@@ -93,7 +93,8 @@ class PickChannels(ModalScreen[list[str] | None]):
     """Tick channels (space), enter confirms; returns the ticked names or None."""
 
     DEFAULT_CSS = DIALOG_CSS.format(name="PickChannels")
-    BINDINGS = [Binding("escape", "cancel", "cancel"), Binding("enter", "confirm", "confirm")]
+    BINDINGS = [Binding("escape", "cancel", "cancel"),
+                Binding("enter", "confirm", "confirm", priority=True)]
 
     def __init__(self, question: str, channels: Sequence[str]) -> None:
         super().__init__()

@@ -133,7 +133,7 @@ class ParamForm(VerticalScroll):
 
     async def show(self, target: FormTarget | None) -> None:
         """Rebuild the fields for `target` (None: no stage highlighted)."""
-        self.target = target
+        self.target = None              # no previews while the fields are rebuilt
         fields = self.query_one("#form-fields", Vertical)
         await fields.remove_children()
         self._message("")
@@ -148,6 +148,7 @@ class ParamForm(VerticalScroll):
         self.query_one("#form-head", Static).update(self._head(target))
         rows = [self._row(stage, key) for key in field_keys(stage.kind)]
         await fields.mount_all(rows)
+        self.target = target
         self.preview()
 
     def _head(self, target: FormTarget) -> str:

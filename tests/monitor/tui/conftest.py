@@ -7,7 +7,6 @@ the pty's slave with pyserial as it would /dev/ttyACM0.
 
 from __future__ import annotations
 
-import time
 from collections.abc import Iterator
 
 import pytest
@@ -29,17 +28,46 @@ def weigh_lines(rate_hz: float = BOARD_RATE_HZ, channels: int = 3,
 
 
 @pytest.fixture
-def pipeline(pty_board, wait_for):
-    """A started Pipeline on the pty board, rate declared (250 Hz) so chains design at once."""
+def start_pipeline(pty_board, wait_for):
+    """start_pipeline(chain_spec=None) -> a started Pipeline on the pty board.
+
+    The rate is declared (250 Hz) so chains design at once; stopped at teardown.
+    """
     from monitor.pipeline import Pipeline, text_source
     from monitor.sources import open_byte_source
 
-    source = open_byte_source(pty_board.path, 115200)
-    pty_board.play(weigh_lines(), BOARD_RATE_HZ)   # after the open: the header is surely read
-    p = Pipeline(text_source(source, declared_rate=BOARD_RATE_HZ), rate_hz=BOARD_RATE_HZ,
-                 ring_capacity=int(BOARD_RATE_HZ * 60))
-    p.start()
-    assert wait_for(lambda: p.ring is not None and p.ring.total >= 50 and p.schema is not None)
-    yield p
-    p.stop()
-    time.sleep(0)  # let the board thread see the closed port
+    started = []
+
+    def start(chain_spec=None):
+        source = open_byte_source(pty_board.path, 115200)
+        pty_board.play(weigh_lines(), BOARD_RATE_HZ)   # after the open: the header is read
+        p = Pipeline(text_source(source, declared_rate=BOARD_RATE_HZ), chain_spec=chain_spec,
+                     rate_hz=BOARD_RATE_HZ, ring_capacity=int(BOARD_RATE_HZ * 60))
+        p.start()
+        started.append(p)
+        assert wait_for(lambda: p.ring is not None and p.ring.total >= 50
+                        and p.schema is not None and p.chain is not None)
+        return p
+
+    yield start
+    for p in started:
+        p.stop()
+
+
+@pytest.fixture(autouse=True)
+def pilot_idle_by_events(monkeypatch):
+    """Let pilot.press return once the key is delivered instead of when the process idles.
+
+    textual's pilot waits after each key until the process's CPU time stops
+    advancing (textual._wait.wait_for_idle, up to 1 s, twice per key); the live
+    pipeline's reader thread in this process never lets it, so every key would
+    cost 2 s. The tests synchronise on what they check instead (`until`).
+    """
+    import asyncio
+
+    import textual.app
+
+    async def short_wait(min_sleep: float = 0.0, max_sleep: float = 1.0) -> None:
+        await asyncio.sleep(0.01)
+
+    monkeypatch.setattr(textual.app, "wait_for_idle", short_wait)

@@ -1,0 +1,344 @@
+"""The terminal UI driven by textual's pilot against a live pipeline on a real pty."""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import os
+import re
+import time
+
+import numpy as np
+import pytest
+from scipy import signal
+
+from filters.chainfile import format_chain, parse_chain
+from filters.design import design_stage
+from filters.spec import StageSpec
+from monitor.tui.app import TunetraceApp
+from monitor.tui.dialogs import AskValue, PickChannels, PickKind
+from monitor.tui.help_screen import HelpScreen
+from monitor.tui.keys import ACTIONS
+
+RATE = 250.0
+CHAIN = """
+[[stage]]
+kind = "median"
+window = 5
+channels = ["load"]
+
+[[stage]]
+kind = "notch"
+freq_hz = 50.0
+q = 30.0
+channels = ["load", "current"]
+
+[[stage]]
+kind = "rc-lowpass"
+cutoff_hz = 8.0
+channels = ["load"]
+"""
+SIZE = (160, 48)
+
+
+def run(coro):
+    return asyncio.run(coro)
+
+
+def make_app(pipeline, verb="live", **options) -> TunetraceApp:
+    return TunetraceApp(pipeline, argparse.Namespace(verb=verb, **options))
+
+
+async def until(pilot, predicate, timeout: float = 8.0) -> bool:
+    """Let the app run until `predicate()` holds (or `timeout` s pass); its last value."""
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        if predicate():
+            return True
+        await pilot.pause(0.05)
+    return bool(predicate())
+
+
+def kinds_on(pipeline, channel: str) -> list[str]:
+    return [s.kind for _, s in pipeline.chain.spec.stages_for(channel)]
+
+
+async def highlight_stage(pilot, app, position: int) -> None:
+    stages = app.query_one("#stages")
+    assert await until(pilot, lambda: len(stages.indices) > position)
+    stages.focus()
+    stages.highlighted = position
+    assert await until(pilot, lambda: app.query_one("#form").target is not None
+                       and app.query_one("#form").target.index == stages.indices[position])
+
+
+async def type_into(pilot, app, selector: str, text: str) -> None:
+    """Focus the field, clear it and type `text` key by key, as a user would."""
+    field = app.query_one(selector)
+    field.focus()
+    await pilot.pause()
+    field.value = ""
+    await pilot.press(*text)
+
+
+def asking(app) -> bool:
+    """An AskValue dialog is up and composed."""
+    return isinstance(app.screen, AskValue) and bool(app.screen.query("#answer"))
+
+
+def field_error(app, key: str) -> str:
+    return str(app.query_one(f"#error-{key}").render())
+
+
+def test_editing_a_cutoff_reaches_the_running_chain(start_pipeline):
+    pipeline = start_pipeline(parse_chain(CHAIN))
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            await highlight_stage(pilot, app, 2)                  # rc-lowpass of load
+            await type_into(pilot, app, "#field-cutoff_hz", "4.5")
+            await pilot.press("enter")
+            expected = design_stage(StageSpec("rc-lowpass", {"cutoff_hz": 4.5}), RATE).sos
+
+            def running_sos():
+                return dict(pipeline.chain.designs_for("load"))[2].sos
+
+            assert await until(pilot, lambda: np.allclose(running_sos(), expected, rtol=0,
+                                                          atol=1e-15))
+            # Outside check: scipy.signal.butter(1, fc, fs) is the bilinear transform with
+            # prewarping at fc of the first-order low-pass, i.e. an RC low-pass under
+            # tustin-prewarp (the chain file's default method).
+            reference = signal.butter(1, 4.5, fs=RATE, output="sos")
+            np.testing.assert_allclose(running_sos(), reference, rtol=1e-12, atol=1e-14)
+            # the other channels keep what they ran
+            assert kinds_on(pipeline, "current") == ["notch"]
+            assert "applied" in app.ui.notice
+            await pilot.press("q")
+        return app.return_value
+
+    assert run(scenario()) == 0
+
+
+def test_a_cutoff_above_nyquist_is_refused_beside_the_field(start_pipeline):
+    pipeline = start_pipeline(parse_chain(CHAIN))
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            await highlight_stage(pilot, app, 2)
+            before = pipeline.chain
+            sos_before = dict(before.designs_for("load"))[2].sos.copy()
+            await type_into(pilot, app, "#field-cutoff_hz", "200")
+            await pilot.press("enter")
+            assert await until(pilot, lambda: "Nyquist" in field_error(app, "cutoff_hz"))
+            await pilot.pause(0.3)                                 # several reader blocks
+            assert pipeline.chain is before
+            np.testing.assert_array_equal(dict(pipeline.chain.designs_for("load"))[2].sos,
+                                          sos_before)
+            # garbage is stopped by the field's validator, with a sentence naming the key
+            await type_into(pilot, app, "#field-cutoff_hz", "8k")
+            assert await until(pilot, lambda: "cutoff_hz must be a number"
+                               in field_error(app, "cutoff_hz"))
+            await pilot.press("enter")
+            await pilot.pause(0.2)
+            assert pipeline.chain is before
+            assert pipeline.status().running
+            await pilot.press("escape", "q")
+
+    run(scenario())
+
+
+def test_remove_and_reorder_stages(start_pipeline):
+    pipeline = start_pipeline(parse_chain(CHAIN))
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            await highlight_stage(pilot, app, 0)                  # median
+            await pilot.press("greater_than_sign")
+            assert await until(pilot, lambda: kinds_on(pipeline, "load")
+                               == ["notch", "median", "rc-lowpass"])
+            assert kinds_on(pipeline, "current") == ["notch"]      # untouched
+            await pilot.press("less_than_sign")
+            assert await until(pilot, lambda: kinds_on(pipeline, "load")
+                               == ["median", "notch", "rc-lowpass"])
+            await highlight_stage(pilot, app, 1)                  # the shared notch
+            await pilot.press("d")
+            assert await until(pilot, lambda: kinds_on(pipeline, "load")
+                               == ["median", "rc-lowpass"])
+            assert kinds_on(pipeline, "current") == ["notch"]      # split off, not removed
+            await pilot.press("b")                                 # bypass rc-lowpass
+            assert await until(pilot, lambda: pipeline.chain.spec.stages_for("load")[1][1].bypass)
+            await pilot.press("m")                                 # next method
+            assert await until(pilot, lambda: pipeline.chain.spec.stages_for("load")[1][1]
+                               .params.get("method") == "zoh")
+            await pilot.press("q")
+
+    run(scenario())
+
+
+def test_add_a_stage_from_the_kind_list_and_copy_the_chain(start_pipeline):
+    pipeline = start_pipeline()
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            await pilot.press("2")                                 # channel current
+            assert await until(pilot, lambda: app.channel == "current")
+            await pilot.press("a")
+            assert await until(pilot, lambda: isinstance(app.screen, PickKind))
+            kinds = app.screen.query_one("#kinds")
+            kinds.highlighted = [o.id for o in kinds.options].index("ema")
+            await pilot.press("enter")
+            assert await until(pilot, lambda: kinds_on(pipeline, "current") == ["ema"])
+            assert kinds_on(pipeline, "load") == []
+            await pilot.press("c")
+            assert await until(pilot, lambda: isinstance(app.screen, PickChannels))
+            app.screen.query_one("#channels").select("vib")
+            await pilot.press("enter")
+            assert await until(pilot, lambda: kinds_on(pipeline, "vib") == ["ema"])
+            assert kinds_on(pipeline, "load") == []
+            await pilot.press("q")
+
+    run(scenario())
+
+
+def test_record_creates_a_file_that_grows_and_stops(start_pipeline, tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    pipeline = start_pipeline(parse_chain(CHAIN))
+
+    async def scenario():
+        app = make_app(pipeline, verb="demo")
+        async with app.run_test(size=SIZE) as pilot:
+            await pilot.press("r")
+            assert await until(pilot, lambda: asking(app))
+            proposed = app.screen.query_one("#answer").value
+            assert re.fullmatch(r"weigh-\d{8}-\d{6}\.csv", proposed)
+            await pilot.press("enter")
+            path = tmp_path / proposed
+            assert await until(pilot, lambda: path.exists() and path.stat().st_size > 0)
+            assert await until(pilot, lambda: pipeline.status().recording is not None)
+            first = path.stat().st_size
+            assert await until(pilot, lambda: path.stat().st_size > first)
+            assert await until(pilot, lambda: "REC " + proposed
+                               in str(app.query_one("#status").render()))
+            await pilot.press("r")                                 # stop
+            assert await until(pilot, lambda: pipeline.status().recording is None)
+            text = path.read_text()
+            assert text.startswith("# tunetrace recording 1")
+            assert "t_host,load,current,vib" in text
+            # an unwritable place: one sentence, the stream goes on unrecorded
+            await pilot.press("r")
+            assert await until(pilot, lambda: asking(app))
+            app.screen.query_one("#answer").value = str(tmp_path / "no-such-dir" / "x.csv")
+            await pilot.press("enter")
+            assert await until(pilot, lambda: "does not exist" in app.ui.notice)
+            assert pipeline.status().recording is None and pipeline.status().running
+            await pilot.press("q")
+
+    run(scenario())
+
+
+def test_malformed_chain_file_is_refused_and_a_saved_one_loads(start_pipeline, tmp_path):
+    pipeline = start_pipeline(parse_chain(CHAIN))
+    bad = tmp_path / "bad.toml"
+    bad.write_text('[[stage]]\nkind = "rc-lowpass"\ncutoff_hz = "eight"\n')
+
+    async def ask(pilot, app, key: str, answer: str) -> None:
+        await pilot.press(key)
+        assert await until(pilot, lambda: asking(app))
+        app.screen.query_one("#answer").value = answer
+        await pilot.press("enter")
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            before = pipeline.chain
+            await ask(pilot, app, "l", str(bad))
+            assert await until(pilot, lambda: "running chain goes on" in app.ui.notice)
+            assert "stage 1" in app.ui.notice
+            await pilot.pause(0.2)
+            assert pipeline.chain is before
+            await ask(pilot, app, "l", str(tmp_path / "missing.toml"))
+            assert await until(pilot, lambda: "cannot read" in app.ui.notice)
+            assert pipeline.chain is before
+            saved = tmp_path / "saved.toml"
+            await ask(pilot, app, "s", str(saved))
+            assert await until(pilot, lambda: saved.exists())
+            assert parse_chain(saved.read_text()) == parse_chain(format_chain(before.spec))
+            # a different valid chain loads and runs
+            other = tmp_path / "other.toml"
+            other.write_text('[[stage]]\nkind = "ema"\nalpha = 0.25\n')
+            await ask(pilot, app, "l", str(other))
+            assert await until(pilot, lambda: kinds_on(pipeline, "vib") == ["ema"])
+            await pilot.press("q")
+
+    run(scenario())
+
+
+def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline):
+    pipeline = start_pipeline()
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            await pilot.press("question_mark")
+            assert await until(pilot, lambda: isinstance(app.screen, HelpScreen))
+            console_text = _plain(app, app.screen.body)
+            for action in ACTIONS:
+                assert action.help in console_text, action.action
+            await pilot.press("escape")
+            assert await until(pilot, lambda: not isinstance(app.screen, HelpScreen))
+            from monitor.tui.palette import SessionCommands
+
+            provider = SessionCommands(app.screen)
+            hits = [hit async for hit in provider.search("record")]
+            assert any("record" in hit.text for hit in hits)
+            found = [hit async for hit in provider.discover()]
+            assert len(found) == len(ACTIONS)
+            await pilot.press("q")
+
+    run(scenario())
+
+
+def test_view_hold_trace_freeze_window_and_analysis_frequency(start_pipeline):
+    pipeline = start_pipeline(parse_chain(CHAIN))
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            await pilot.press("space")
+            assert await until(pilot, lambda: pipeline.status().paused)
+            total = pipeline.ring.total
+            await pilot.pause(0.3)
+            assert pipeline.ring.total == total                   # the view holds still
+            await pilot.press("space")
+            assert await until(pilot, lambda: pipeline.ring.total > total)
+            await pilot.press("f")
+            assert app.ui.frozen
+            await pilot.press("f", "minus")
+            assert app.ui.window_s < 5.0
+            lag_1hz = app.session.lag_ms("load", 1.0)
+            await pilot.press("g")
+            assert await until(pilot, lambda: asking(app))
+            app.screen.query_one("#answer").value = "500"          # above Nyquist: refused
+            await pilot.press("enter")
+            assert isinstance(app.screen, AskValue)
+            app.screen.query_one("#answer").value = "20"
+            await pilot.press("enter")
+            assert await until(pilot, lambda: app.ui.analysis_hz == 20.0)
+            assert app.session.lag_ms("load", 20.0) != pytest.approx(lag_1hz)
+            await pilot.press("t")                                 # live: replay-only key
+            assert await until(pilot, lambda: "replaying" in app.ui.notice)
+            await pilot.press("q")
+
+    run(scenario())
+
+
+def _plain(app, renderable) -> str:
+    from rich.console import Console
+
+    console = Console(width=200, record=True, file=open(os.devnull, "w"))
+    console.print(renderable)
+    return console.export_text()
