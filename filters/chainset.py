@@ -43,11 +43,15 @@ class ChainSet:
     """
 
     def __init__(self, spec: ChainSpec, channels: Sequence[str], rate_hz: float) -> None:
-        if not (isinstance(rate_hz, int | float) and math.isfinite(rate_hz) and rate_hz > 0):
+        try:
+            rate = float(rate_hz)
+        except (TypeError, ValueError):
+            rate = math.nan
+        if isinstance(rate_hz, bool) or not (math.isfinite(rate) and rate > 0):
             raise ValueError(f"rate_hz = {rate_hz!r} must be a positive number of Hz")
         self.spec = spec
         self.channels = tuple(channels)
-        self.rate_hz = float(rate_hz)
+        self.rate_hz = rate
         if len(set(self.channels)) != len(self.channels):
             raise ValueError(f"channel names {list(self.channels)} must be unique")
         self.designs = tuple(self._design(i, stage) for i, stage in enumerate(spec.stages))

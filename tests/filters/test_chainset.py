@@ -162,12 +162,17 @@ def test_identity_passes_a_copy():
     assert np.array_equal(y, DATA) and y is not DATA and y.dtype == np.float64
 
 
+def test_numpy_rates_are_accepted():
+    assert ChainSet(WEIGH_CHAIN, CHANNELS, np.int64(250)).rate_hz == 250.0
+    assert ChainSet(WEIGH_CHAIN, CHANNELS, np.float64(250.0)).rate_hz == 250.0
+
+
 def test_process_refuses_a_wrong_width():
     with pytest.raises(ValueError, match="shape"):
         ChainSet(WEIGH_CHAIN, CHANNELS, RATE_HZ).process(np.zeros((4, 2)))
 
 
-@pytest.mark.parametrize("rate", [0, -250.0, float("nan"), float("inf")])
+@pytest.mark.parametrize("rate", [0, -250.0, float("nan"), float("inf"), True, "fast", None])
 def test_bad_rate_is_refused(rate):
     with pytest.raises(ValueError, match="rate_hz"):
         ChainSet(WEIGH_CHAIN, CHANNELS, rate)
