@@ -17,9 +17,12 @@ over bytes.
 
 from __future__ import annotations
 
+import re
+
 from monitor.counters import BadFrames
 
 DEFAULT_MAX_LINE = 4096
+_BLANK = re.compile(rb"\n[ \t\x0b\x0c]+\n")   # a whitespace-only line after the first
 
 
 class TextFramer:
@@ -68,7 +71,9 @@ class TextFramer:
             self._first_pending = False
         self._buf = b""
         self._extend(tail)
-        lines = [p for p in parts if p and not p.isspace()]
+        lines = list(filter(None, parts))
+        if _BLANK.search(data) or parts[0].isspace():   # rare: only then look at every line
+            lines = [p for p in lines if not p.isspace()]
         if len(data) > self.max_line or len(parts[0]) > self.max_line:
             lines = self._without_overlong(lines)
         return lines

@@ -32,6 +32,7 @@ from monitor.ring import DEFAULT_RING_CAPACITY, Ring
 
 READ_TIMEOUT_S = 0.05          # bounds how long stop() and commands wait
 COMMAND_QUEUE_SIZE = 64
+BATCH_BYTES = 65536            # most bytes a live source decodes in one block
 RATE_WAIT_NOTE = ("filtered = raw until the sample rate is known: estimating it from "
                   "arrival times (give --rate HZ to skip)")
 
@@ -186,7 +187,18 @@ class FramedSource:
         return getattr(self.decoder, "warning", None)
 
     def read_block(self, timeout: float) -> Block | None:
+        """Wait up to `timeout` s for bytes, take whatever else is already waiting (up to
+        BATCH_BYTES, so a backlog is parsed in few large calls) and decode it."""
         data = self.byte_source.read(timeout)
+        if data:
+            parts, size = [data], len(data)
+            while size < BATCH_BYTES:
+                more = self.byte_source.read(0.0)
+                if not more:
+                    break
+                parts.append(more)
+                size += len(more)
+            data = b"".join(parts) if len(parts) > 1 else data
         now = time.monotonic()
         frames = self.framer.feed(data) if data else []
         if self.byte_source.state == "ended" and hasattr(self.framer, "flush"):
@@ -197,7 +209,7 @@ class FramedSource:
             return None
         n = len(block)
         self._arrival.add(now, n)
-        return dataclasses.replace(block, t_host=self._timestamps(now, n))
+        return Block(self._timestamps(now, n), block.values, block.t_dev, block.counter)
 
     def _timestamps(self, now: float, n: int) -> np.ndarray:
         steps = np.arange(n, dtype=np.float64)

@@ -104,3 +104,8 @@ def test_any_chunking_gives_the_same_lines(lines, ends, cuts):
     chunks = [data[a:b] for a, b in zip(bounds, bounds[1:], strict=False)]
     framer = TextFramer(drop_partial_first=False)
     assert feed_all(framer, chunks) == lines
+
+
+def test_whitespace_line_split_across_chunks_ignored():
+    framer = TextFramer(drop_partial_first=False)
+    assert feed_all(framer, [b"1\n  ", b" \n2\n", b"\t", b"\r\n3\r"]) == [b"1", b"2", b"3"]

@@ -337,14 +337,16 @@ def test_device_vanishes_and_returns_nothing_delivered_lost(tmp_path, wait_for):
     assert pipe.status().gaps >= 2 and any("vanished" in g for g in sink.gaps)
 
 
-def test_framed_source_timestamps_follow_the_rate():
+def test_framed_source_drains_what_is_waiting_and_timestamps_follow_the_rate():
     class Bytes:
         state = "connected"
 
-        def __init__(self, chunks):
-            self.chunks = list(chunks)
+        def __init__(self):
+            self.chunks = []
+            self.reads = 0
 
         def read(self, timeout):
+            self.reads += 1
             return self.chunks.pop(0) if self.chunks else b""
 
         def take_gaps(self):
@@ -356,10 +358,13 @@ def test_framed_source_timestamps_follow_the_rate():
     from monitor.decoding import TextDecoder
     from monitor.framing import TextFramer
 
-    src = FramedSource(Bytes([b"\n1\n2\n3\n", b"4\n5\n"]), TextFramer(), TextDecoder(),
-                       declared_rate=100.0)
-    first = src.read_block(0.0)
-    second = src.read_block(0.0)
+    raw = Bytes()
+    src = FramedSource(raw, TextFramer(), TextDecoder(), declared_rate=100.0)
+    raw.chunks += [b"\n1\n2\n", b"3\n", b"4\n5\n"]
+    first = src.read_block(0.0)                  # all three waiting reads in one block
+    assert first.values[:, 0].tolist() == [1, 2, 3, 4, 5] and raw.reads == 4
     np.testing.assert_allclose(np.diff(first.t_host), 0.01)
+    raw.chunks.append(b"6\n")
+    second = src.read_block(0.0)
     assert second.t_host[0] > first.t_host[-1]
     assert src.rate_hint() == (100.0, "declared")
