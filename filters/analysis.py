@@ -17,6 +17,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from filters.design import StageDesign
+from filters.prototypes import zpk_response
 
 SETTLE_FRACTION = 0.02  # settling band: 2 % of the final value, common practice
 _TAIL = 1e-7            # impulse responses are run until the slowest pole decays to this
@@ -57,13 +58,7 @@ def analog_response(design: StageDesign, freqs_hz: np.ndarray) -> np.ndarray | N
     if design.analog_zpk is None:
         return None
     z, p, k = design.analog_zpk
-    s = 2j * np.pi * np.asarray(freqs_hz, dtype=float)
-    h = np.full(s.shape, k, dtype=complex)
-    for zero in z:
-        h = h * (s - zero)
-    for pole in p:
-        h = h / (s - pole)
-    return h
+    return zpk_response(z, p, k, 2j * np.pi * np.asarray(freqs_hz, dtype=float))
 
 
 def chain_response(designs: Sequence[StageDesign], freqs_hz: np.ndarray,

@@ -66,20 +66,24 @@ class AnalogPrototype:
 
     def response(self, freqs_hz: np.ndarray) -> np.ndarray:
         """H(j 2 pi f) at freqs_hz (Hz, any shape) -> complex array of the same shape."""
-        s = 2j * np.pi * np.asarray(freqs_hz, dtype=float)
-        num = np.ones_like(s) * self.k
-        for zero in self.z:
-            num = num * (s - zero)
-        den = np.ones_like(s)
-        for pole in self.p:
-            den = den * (s - pole)
-        return num / den
+        return zpk_response(self.z, self.p, self.k, 2j * np.pi * np.asarray(freqs_hz, float))
 
     def at_edges(self, edges_hz: tuple[float, ...]) -> AnalogPrototype:
         """The same prototype redesigned at other characteristic frequencies (prewarp)."""
         if self.rebuild is None:
             raise ValueError("this prototype cannot be redesigned at other frequencies")
         return self.rebuild(tuple(edges_hz))
+
+
+def zpk_response(z: np.ndarray, p: np.ndarray, k: float, s: np.ndarray) -> np.ndarray:
+    """k prod(s - z) / prod(s - p) at complex points s (any shape), factor by factor
+    so that high orders keep their accuracy."""
+    h = np.full(np.shape(s), k, dtype=complex)
+    for zero in z:
+        h = h * (s - zero)
+    for pole in p:
+        h = h / (s - pole)
+    return h
 
 
 def _zpk(z, p, k: float, band: str, edges, check, derived, rebuild) -> AnalogPrototype:

@@ -29,8 +29,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="sample rate to design for (default: the chain file's rate_hz)")
     parser.add_argument("--json", action="store_true", help="print one JSON object")
     parser.add_argument("--at", type=float, metavar="HZ",
-                        help="frequency for the lag figures (default: the chain's first "
-                             "cutoff, else the centre of its first band-pass, else 1 Hz)")
+                        help="frequency for the lag figures (default: each stage's or chain's "
+                             "first cutoff, else the centre of its first band-pass, else 1 Hz)")
     parser.add_argument("--channels", type=channel_list, metavar="NAMES",
                         help="channels to analyse, comma separated (default: those the chain "
                              "names, plus 'other channels' when a stage selects every channel)")
@@ -78,13 +78,15 @@ def run(args: argparse.Namespace) -> int:
         except ValueError as exc:
             raise UserError(f"{args.chain}: stage {number} ({stage.kind}): "
                             f"{str(exc).rstrip('.')}.") from None
-    at = _analysis_frequency(args.at, designs, rate, default_analysis_hz)
-    stage_reports = [stage_report(d, at, index=i) for i, d in enumerate(designs)]
+    at = _analysis_frequency(args.at, rate)
+    stage_reports = [stage_report(d, at if at is not None else default_analysis_hz([d], rate),
+                                  index=i) for i, d in enumerate(designs)]
     channels = list(args.channels) if args.channels else channels_of(spec)
     chains = []
     for channel in channels:
-        indices = [i for i in _stages_for(spec, channel) if not spec.stages[i].bypass]
-        chains.append(chain_report(channel, [(i, designs[i]) for i in indices], rate, at))
+        stages = [(i, designs[i]) for i in _stages_for(spec, channel) if not spec.stages[i].bypass]
+        chain_at = at if at is not None else default_analysis_hz([d for _, d in stages], rate)
+        chains.append(chain_report(channel, stages, rate, chain_at))
     quantization = _quantization(args.target, spec, designs, channels, rate)
     if args.json:
         out = _json(args.chain, rate, origin, at, spec, stage_reports, chains)
@@ -110,17 +112,16 @@ def _quantization(target: str | None, spec: Any, designs: list, channels: list[s
     return quantization_report(per_channel, rate, target)
 
 
-def _analysis_frequency(given: float | None, designs: list, rate: float, default) -> float:
+def _analysis_frequency(given: float | None, rate: float) -> float | None:
+    """--at checked against the Nyquist frequency; None means each report's own default."""
     nyquist = rate / 2
-    if given is None:
-        return default(designs, rate)
-    if not (math.isfinite(given) and 0 <= given < nyquist):
+    if given is not None and not (math.isfinite(given) and 0 <= given < nyquist):
         raise UserError(f"--at {given:g} is outside the allowed range 0 <= HZ < {nyquist:g} "
                         f"(the Nyquist frequency at {rate:g} Hz).")
     return given
 
 
-def _json(path: str, rate: float, origin: str, at: float, spec: Any, stages: list,
+def _json(path: str, rate: float, origin: str, at: float | None, spec: Any, stages: list,
           chains: list) -> dict[str, object]:
     out_stages = []
     for report in stages:
@@ -139,6 +140,11 @@ def _g(value: float | None, digits: int = 4) -> str:
     if math.isinf(value):
         return "-inf" if value < 0 else "inf"
     return f"{value:.{digits}g}"
+
+
+def _clean(value: float) -> float:
+    """No "-0" in the output: values within rounding of zero print as 0."""
+    return 0.0 if abs(value) < 5e-13 else value
 
 
 def _db(value: float | None) -> str:
@@ -191,17 +197,20 @@ def _cost_lines(costs) -> list[str]:
              else f"{costs.noise_gain:.4g} ({_g(costs.noise_gain_db, 3)} dB)")
     settle = (f"settles to 2 % in {costs.settling_s:.3g} s" if math.isfinite(costs.settling_s)
               else "does not settle to 2 % within the simulated response")
+    lag = _clean(round(costs.phase_lag_deg, 1))
     return [
-        f"  at {costs.at_hz:g} Hz: group delay {costs.group_delay_ms:.3g} ms, phase lag "
-        f"{costs.phase_lag_deg:.1f} deg ({costs.phase_delay_ms:.3g} ms)",
-        f"  {edges}; DC gain {_g(costs.dc_gain, 6)}; {settle}",
+        f"  at {costs.at_hz:.4g} Hz: group delay {_clean(costs.group_delay_ms):.3g} ms, phase "
+        f"lag {lag:.1f} deg ({_clean(costs.phase_delay_ms):.3g} ms)",
+        f"  {edges}; DC gain {_g(_clean(costs.dc_gain), 6)}; {settle}",
         f"  noise gain {noise}; stability margin {costs.stability_margin:.4g}",
     ]
 
 
-def _text(path: str, rate: float, origin: str, at: float, spec: Any, stages: list,
+def _text(path: str, rate: float, origin: str, at: float | None, spec: Any, stages: list,
           chains: list) -> str:
-    out = [f"chain {path}", f"rate {rate:g} Hz (from {origin}); lag figures at {at:g} Hz", ""]
+    where = (f"at {at:g} Hz (--at)" if at is not None
+             else "at each first cutoff, else 1 Hz")
+    out = [f"chain {path}", f"rate {rate:g} Hz (from {origin}); lag figures {where}", ""]
     for report in stages:
         stage = spec.stages[report.index]
         d = report.design

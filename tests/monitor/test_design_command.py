@@ -58,7 +58,9 @@ def test_text_output(chain, capsys):
     assert code == 0 and err == ""
     lines = out.splitlines()
     assert all(len(line) <= 80 for line in lines[1:]), [ln for ln in lines if len(ln) > 80]
-    assert "rate 250 Hz (from --rate); lag figures at 8 Hz" in out
+    assert "rate 250 Hz (from --rate); lag figures at each first cutoff, else 1 Hz" in out
+    assert "  at 1 Hz: group delay 8 ms, phase lag 2.9 deg (8 ms)" in out  # median: 2 samples
+    assert "  at 8 Hz: group delay 10 ms, phase lag 45.0 deg (15.6 ms)" in out  # RC at cutoff
     assert "stage 1: median (all channels)" in out
     assert "stage 2: notch (channels load)" in out
     assert "stage 4: butterworth (channels current; BYPASSED; method tustin-prewarp)" in out
@@ -95,7 +97,9 @@ def test_json_output(chain, capsys):
 def test_channels_option_and_default_analysis_frequency(chain, capsys):
     code, out, _ = run(capsys, chain(), "--json", "--channels", "vib,load")
     data = json.loads(out)
-    assert code == 0 and data["at_hz"] == 8.0  # the first cutoff in the chain
+    assert code == 0 and data["at_hz"] is None
+    assert [c["at_hz"] for c in data["channels"]] == [8.0, 8.0]  # each chain's first cutoff
+    assert [s["at_hz"] for s in data["stages"]] == [1.0, 1.0, 8.0, 3.0]
     assert [c["channel"] for c in data["channels"]] == ["vib", "load"]
     assert data["channels"][0]["stages"] == [0, 2]
 
@@ -104,7 +108,7 @@ def test_warnings_are_printed(chain, capsys):
     text = '[[stage]]\nkind = "rc-lowpass"\ncutoff_hz = 60.0\nmethod = "matched"\n'
     code, out, _ = run(capsys, chain(text), "--rate", "250")
     assert code == 0 and "warning: T = 0.004 s is too long for matched" in out
-    assert "at 1 Hz" not in out and "lag figures at 60 Hz" in out
+    assert "  at 60 Hz: group delay" in out
 
 
 def test_rate_missing_is_one_sentence(chain, capsys):
