@@ -32,6 +32,7 @@ import time
 
 import numpy as np
 
+from monitor.bench import best_of
 from monitor.decoding import TextDecoder
 from monitor.framing import TextFramer
 from monitor.pipeline import FramedSource, Pipeline, text_source
@@ -95,22 +96,13 @@ def board_text(lines: int, seed: int = 2) -> str:
     return "\n".join(",".join(f"{v:.4f}" for v in row) for row in values) + "\n"
 
 
-def _best_of(repeats: int, work) -> float:
-    best = float("inf")
-    for _ in range(repeats):
-        start = time.perf_counter()
-        work()
-        best = min(best, time.perf_counter() - start)
-    return best
-
-
 def _best_pair(repeats: int, reference, candidate) -> tuple[float, float]:
     """Shortest wall times (s) of reference() and candidate(), runs interleaved so that a
     busy moment of the machine hits both alike."""
     best_ref = best_new = float("inf")
     for _ in range(repeats):
-        best_ref = min(best_ref, _best_of(1, reference))
-        best_new = min(best_new, _best_of(1, candidate))
+        best_ref = min(best_ref, best_of(1, reference))
+        best_new = min(best_new, best_of(1, candidate))
     return best_ref, best_new
 
 
@@ -242,7 +234,7 @@ def _help_seconds(quick: bool) -> dict[str, float | bool]:
     def once() -> None:
         subprocess.run(command, stdout=subprocess.DEVNULL, check=True)
 
-    seconds = _best_of(1 if quick else 3, once)
+    seconds = best_of(1 if quick else 3, once)
     return {"help_seconds": seconds, "help_ok": bool(seconds < TARGET_HELP_S)}
 
 
