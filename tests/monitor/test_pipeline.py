@@ -368,3 +368,18 @@ def test_framed_source_drains_what_is_waiting_and_timestamps_follow_the_rate():
     second = src.read_block(0.0)
     assert second.t_host[0] > first.t_host[-1]
     assert src.rate_hint() == (100.0, "declared")
+
+
+def test_device_time_gives_the_rate_and_counter_gaps_count_as_dropped(wait_for):
+    url = "sim://?rate=500&seed=5&clock=1&seq=1&drop=0.02&glitch=0.02"
+    source = text_source(open_byte_source(url), time_column="t_s", counter_column="seq")
+    pipe = Pipeline(source, chain_spec=parse_chain('[[stage]]\nkind = "median"\nwindow = 3\n'))
+    pipe.start()
+    assert wait_for(lambda: pipe.status().frames > 400 and pipe.status().dropped > 0
+                    and pipe.status().bad > 0)
+    status = pipe.status()
+    pipe.stop()
+    assert (status.rate_hz, status.rate_origin) == (pytest.approx(500.0), "device")
+    assert status.chain_note is None and pipe.chain.rate_hz == pytest.approx(500.0)
+    assert pipe.schema.time_column == "t_s" and "t_s" not in pipe.schema.channels
+    assert status.error is None and status.last_bad_reason
