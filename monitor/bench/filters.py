@@ -18,13 +18,13 @@ Samples are counted per channel (rows x channels).
 
 from __future__ import annotations
 
-import time
 from collections.abc import Callable
 
 import numpy as np
 
 from filters.chainset import ChainSet
 from filters.spec import ChainSpec, StageSpec
+from monitor.bench import best_of
 
 TARGET_RATIO = 0.5
 RATE_HZ = 1000.0
@@ -33,16 +33,6 @@ BLOCK = 10
 MEDIAN = StageSpec("median", {"window": 5})
 NOTCH = StageSpec("notch", {"freq_hz": 50.0, "q": 30.0})
 LOWPASS = StageSpec("butterworth", {"order": 4, "cutoff_hz": 8.0})
-
-
-def _best_of(repeats: int, work: Callable[[], object]) -> float:
-    """Shortest wall time of `repeats` runs of work() (s): the least disturbed run."""
-    best = float("inf")
-    for _ in range(repeats):
-        start = time.perf_counter()
-        work()
-        best = min(best, time.perf_counter() - start)
-    return best
 
 
 def _weigh_data(n: int) -> np.ndarray:
@@ -86,12 +76,12 @@ def run(quick: bool) -> dict[str, float | int | str | bool]:
     chain = ChainSet(iir, [f"ch{i}" for i in range(CHANNELS)], RATE_HZ)
     sos = np.vstack([design.sos for design in chain.designs])
     zi = sosfilt_zi(sos)[:, :, None] * x[0][None, None, :]
-    reference_s = _best_of(repeats, lambda: sosfilt(sos, x, axis=0, zi=zi))
-    block_s = _best_of(repeats, _blockwise(iir, blocks))
+    reference_s = best_of(repeats, lambda: sosfilt(sos, x, axis=0, zi=zi))
+    block_s = best_of(repeats, _blockwise(iir, blocks))
 
     wide = [x[i:i + 100] for i in range(0, n, 100)]
-    wide_s = _best_of(repeats, _blockwise(iir, wide))
-    chain_s = _best_of(repeats, _blockwise(ChainSpec((MEDIAN, NOTCH, LOWPASS)), blocks))
+    wide_s = best_of(repeats, _blockwise(iir, wide))
+    chain_s = best_of(repeats, _blockwise(ChainSpec((MEDIAN, NOTCH, LOWPASS)), blocks))
 
     filtered = np.vstack([chain.process(block) for block in blocks])
     reference, _ = sosfilt(sos, x, axis=0, zi=zi)
