@@ -85,6 +85,7 @@ class QuantizationReport:
     fatal: tuple[str, ...]
     problems: tuple[str, ...]
     warnings: tuple[str, ...]
+    suggestion: str = ""     # the fix to try when not ok
 
     @property
     def ok(self) -> bool:
@@ -94,6 +95,7 @@ class QuantizationReport:
         """A JSON-ready summary: target, ok, fatal, problems, warnings, per-channel bounds."""
         return {"target": self.target, "ok": self.ok, "fatal": list(self.fatal),
                 "problems": list(self.problems), "warnings": list(self.warnings),
+                "suggestion": "" if self.ok else self.suggestion,
                 "channels": {c.channel: {"error_bound_full_scale": c.error_bound,
                                          "worst_response_error_db":
                                              max((s.worst_error_db for s in c.stages),
@@ -140,6 +142,8 @@ class QuantizationReport:
             lines.extend(f"{title}: {text}" for text in items)
         if self.ok:
             lines.append(f"{self.target} holds this chain.")
+        else:
+            lines.append(f"suggested fix: {self.suggestion}")
         return "\n".join(lines)
 
 
@@ -285,10 +289,8 @@ def report_for_plans(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, t
             problems.append(f"channel {ch.channel}: the {target} rounding error can reach "
                             f"{ch.error_bound * 100:.3f} % of full scale "
                             f"(limit {ERROR_BOUND_LIMIT * 100:g} %)")
-    if problems:
-        problems.append(_suggestion(plans, rate_hz, target))
     return QuantizationReport(target, float(rate_hz), channels, tuple(fatal), tuple(problems),
-                              tuple(warnings))
+                              tuple(warnings), _suggestion(plans, rate_hz, target))
 
 
 def _suggestion(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, target: str) -> str:
@@ -296,8 +298,8 @@ def _suggestion(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, target
     ratio = f" (lowest now {min(freqs) / rate_hz * 100:.2g} % of the rate)" if freqs else ""
     better = {"c-q15": "use --target c-q31", "c-q31": "use --target c-float",
               "c-float": "use --double"}.get(target, "use another target")
-    return (f"suggested fix: {better}, or raise the cutoff-to-rate ratio{ratio}, e.g. by "
-            "lowering the sample rate before the filter")
+    return (f"{better}, or raise the cutoff-to-rate ratio{ratio}, e.g. by lowering the "
+            "sample rate before the filter")
 
 
 def quantization_report(designs: Sequence[Any] | Mapping[str, Sequence[Any]], rate_hz: float,

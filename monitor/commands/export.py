@@ -16,6 +16,7 @@ import math
 import sys
 from pathlib import Path
 
+from monitor.commands.common import channel_list, positive_float
 from monitor.errors import UserError
 
 TARGET_CHOICES = ("c-float", "c-q15", "c-q31")
@@ -23,7 +24,7 @@ TARGET_CHOICES = ("c-float", "c-q15", "c-q31")
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("chain", metavar="CHAIN", help="chain file (TOML)")
-    parser.add_argument("--rate", type=float, metavar="HZ",
+    parser.add_argument("--rate", type=positive_float, metavar="HZ",
                         help="sample rate the firmware runs at (default: the chain's rate_hz)")
     parser.add_argument("--target", required=True, choices=TARGET_CHOICES,
                         help="c-float (transposed DF2, single precision), c-q15 or c-q31 "
@@ -35,7 +36,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="C prefix and file name (default: the chain file's name)")
     parser.add_argument("--double", action="store_true",
                         help="c-float only: double precision instead of single")
-    parser.add_argument("--channels", metavar="NAMES",
+    parser.add_argument("--channels", type=channel_list, metavar="NAMES",
                         help="comma-separated channel names, in the board's column order")
     parser.add_argument("--full-scale", metavar="UNITS",
                         help="fixed point: units that map to +-1.0, one value (e.g. 50) or "
@@ -96,12 +97,7 @@ def run(args: argparse.Namespace) -> int:
     if not (math.isfinite(args.vectors_seconds) and 0 < args.vectors_seconds <= 3600):
         raise UserError("--vectors-seconds must be between 0 and 3600.")
     fixed = args.target != "c-float"
-    if args.channels is not None:
-        channels = [c.strip() for c in args.channels.split(",") if c.strip()]
-        if not channels:
-            raise UserError("--channels needs at least one channel name.")
-    else:
-        channels = default_channels(spec)
+    channels = list(args.channels) if args.channels else default_channels(spec)
     full_scales = parse_full_scale(args.full_scale, channels, fixed)
     try:
         prefix = check_prefix(args.name or c_identifier(Path(args.chain).stem).lower())
@@ -113,10 +109,9 @@ def run(args: argparse.Namespace) -> int:
         raise UserError(f"{args.chain}: {str(exc).rstrip('.')}.") from None
     print(report.format_text())
     if report.fatal:
-        raise UserError(f"not exported: {report.fatal[0].rstrip('.')}; change the design.")
+        raise UserError(f"not exported: {report.fatal[0]}; {report.suggestion}.")
     if report.problems and not args.accept_quantization:
-        fix = report.problems[-1].removeprefix("suggested fix: ")
-        raise UserError(f"not exported: {report.problems[0]}; {fix} "
+        raise UserError(f"not exported: {report.problems[0]}; {report.suggestion} "
                         "(or --accept-quantization to export anyway).")
     if report.problems:
         print("WARNING: exporting although the target cannot hold this chain; "

@@ -128,7 +128,8 @@ def readme_text(plan: ExportPlan, report: QuantizationReport, chain_path: str,
              CAUTION, ""]
     if forced and not report.ok:
         lines += ["**WARNING: exported although the target cannot hold this chain "
-                  "(--accept-quantization).** " + " ".join(report.fatal + report.problems), ""]
+                  "(--accept-quantization).** " + " ".join(report.problems)
+                  + f" Suggested fix: {report.suggestion}.", ""]
     lines += ["## Files", "",
               f"- `{p}.h`, `{p}.c`: the chains (C99).",
               f"- `{p}_selftest.c`: a main that filters CSV rows from stdin.",

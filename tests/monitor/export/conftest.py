@@ -87,3 +87,15 @@ def export_build(tmp_path):
         return Built(directory, spec, plan, report, texts, exe)
 
     return make
+
+
+@pytest.fixture
+def gcc() -> str:
+    """Path of gcc (skipped outside CI when absent)."""
+    return need("gcc")
+
+
+@pytest.fixture
+def valgrind() -> str:
+    """Path of valgrind (skipped outside CI when absent)."""
+    return need("valgrind")
