@@ -115,7 +115,11 @@ class _Fused:
         self.run: StageRun | None = None  # the run this segment is all of, if any
         self.state_dim = sum(s.state_dim for s in stages)
         self._work = np.zeros((self.state_dim + FUSED_CHUNK, width))
+        self._state = self._work[:self.state_dim]
+        self._top = self.state_dim + 1 + len(stages)  # first row of y in a step's result
         self._matrices: dict[int, np.ndarray] = {}
+        # per block length: (matrix, where the block goes in the work buffer, the operand)
+        self._lanes: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
         self._warm = False
         offset = 0
         for stage in stages:
@@ -126,23 +130,27 @@ class _Fused:
         """Fast lane when this segment is a whole run: one short block x (n, width) in one
         matrix product -> y (n, width), the run's bounds updated; or None with nothing
         changed (a stage not started, n > FUSED_CHUNK or n == 0, a non-finite sample)."""
+        lane = self._lanes.get(x.shape[0])
+        if lane is None or not self._warm:
+            return self._open_lane(x)
+        matrix, slot, operand = lane
+        slot[...] = x
+        result = matrix.dot(operand)
+        # every x entry meets every row (0 * NaN is NaN), so one row tells if x was finite
+        probe = result[self.state_dim]
+        if not math.isfinite(probe.dot(probe)):
+            return None
+        self._state[...] = result[:self.state_dim]
+        self.run._ends = [result[self.state_dim:self._top]]  # type: ignore[union-attr]
+        return result[self._top:]
+
+    def _open_lane(self, x: np.ndarray) -> np.ndarray | None:
         n = x.shape[0]
         if not self._warm or not 0 < n <= FUSED_CHUNK:
             return None
-        dim, work = self.state_dim, self._work
-        matrix = self._matrices.get(n)
-        if matrix is None:
-            matrix = self._matrix(n)
-        work[dim:dim + n] = x
-        result = matrix.dot(work[:dim + n])
-        # every x entry meets every row (0 * NaN is NaN), so one row tells if x was finite
-        probe = result[dim]
-        if not math.isfinite(probe.dot(probe)):
-            return None
-        work[:dim] = result[:dim]
-        top = dim + 1 + len(self.stages)
-        self.run._ends = [result[dim:top]]  # type: ignore[union-attr]
-        return result[top:]
+        dim = self.state_dim
+        self._lanes[n] = (self._matrix(n), self._work[dim:dim + n], self._work[:dim + n])
+        return self.step(x)
 
     def process(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """x (n, width), n >= 1, finite -> (y (n, width), each stage's last output
@@ -159,11 +167,8 @@ class _Fused:
         for start in range(0, x.shape[0], FUSED_CHUNK):
             chunk = x[start:start + FUSED_CHUNK]
             n = chunk.shape[0]
-            matrix = self._matrices.get(n)
-            if matrix is None:
-                matrix = self._matrix(n)
             work[dim:dim + n] = chunk
-            result = matrix.dot(work[:dim + n])
+            result = self._matrix(n).dot(work[:dim + n])
             work[:dim] = result[:dim]
             pieces.append(result[dim + 1 + count:])
         y = pieces[0] if len(pieces) == 1 else np.vstack(pieces)
@@ -173,8 +178,11 @@ class _Fused:
         self._warm = all(s.ready.all() for s in self.stages)
 
     def _matrix(self, n: int) -> np.ndarray:
-        """M_n: rows [new state; last input; each stage's last output; y], one column per
-        unit state entry and per unit input sample."""
+        """M_n (cached): rows [new state; last input; each stage's last output; y], one
+        column per unit state entry and per unit input sample."""
+        cached = self._matrices.get(n)
+        if cached is not None:
+            return cached
         dim = self.state_dim
         basis = np.eye(dim + n)
         signal = basis[dim:]
