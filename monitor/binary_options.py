@@ -112,15 +112,12 @@ def binary_framing(args: argparse.Namespace, source: Any) -> BinaryFraming | Non
         _check_field_options(args)
     options = _decoder_options(args, sim)
     from monitor.decoding_binary import BinaryDecoder
-    from monitor.framing_binary import SyncFramer, make_framer
+    from monitor.framing_binary import make_framer
 
     try:
         decoder = BinaryDecoder(**options)
-        if framing == "sync":
-            framer = SyncFramer(getattr(args, "sync_word", None) or DEFAULT_SYNC_WORD,
-                                frame_length=decoder.frame_size, check=decoder.crc_ok)
-        else:
-            framer = make_framer(framing)
+        framer = make_framer(framing, frame_length=decoder.frame_size, check=decoder.crc_ok,
+                             sync_word=getattr(args, "sync_word", None) or DEFAULT_SYNC_WORD)
     except ValueError as exc:
         raise UserError(f"cannot decode {framing} frames: {str(exc).rstrip('.')}.") from None
     return BinaryFraming(framing, framer, decoder)

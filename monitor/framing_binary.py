@@ -317,16 +317,17 @@ class SyncFramer:
 
 def make_framer(framing: str, *, frame_length: int | None = None,
                 check: Callable[[bytes], bool] | None = None,
+                sync_word: bytes = DEFAULT_SYNC_WORD,
                 max_frame: int = DEFAULT_MAX_FRAME) -> CobsFramer | SlipFramer | SyncFramer:
     """The binary framer called `framing` ("cobs", "slip" or "sync").
 
-    frame_length and check serve the sync framer (see SyncFramer); the
-    delimited framers leave length and checksum to the decoder.
+    frame_length, check and sync_word serve the sync framer (see SyncFramer);
+    the delimited framers leave length and checksum to the decoder.
     """
     if framing == "cobs":
         return CobsFramer(max_frame)
     if framing == "slip":
         return SlipFramer(max_frame)
     if framing == "sync":
-        return SyncFramer(frame_length=frame_length, check=check)
+        return SyncFramer(sync_word, frame_length=frame_length, check=check)
     raise ValueError(f"framing '{framing}' is not a binary framing; use cobs, slip or sync")
