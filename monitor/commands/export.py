@@ -20,6 +20,7 @@ from monitor.commands.common import channel_list, positive_float
 from monitor.errors import UserError
 
 TARGET_CHOICES = ("c-float", "c-q15", "c-q31")
+MAX_VECTOR_ROWS = 1_000_000
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -94,8 +95,10 @@ def run(args: argparse.Namespace) -> int:
                         "with --rate HZ.")
     if args.double and args.target != "c-float":
         raise UserError("--double applies to --target c-float only.")
-    if not (math.isfinite(args.vectors_seconds) and 0 < args.vectors_seconds <= 3600):
-        raise UserError("--vectors-seconds must be between 0 and 3600.")
+    if not (math.isfinite(args.vectors_seconds) and args.vectors_seconds > 0
+            and args.vectors_seconds * rate <= MAX_VECTOR_ROWS):
+        raise UserError(f"--vectors-seconds {args.vectors_seconds:g} must be above 0 and give "
+                        f"at most {MAX_VECTOR_ROWS:,} rows at {rate:g} Hz.")
     fixed = args.target != "c-float"
     channels = list(args.channels) if args.channels else default_channels(spec)
     full_scales = parse_full_scale(args.full_scale, channels, fixed)

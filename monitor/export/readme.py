@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from filters.fixedreport import QuantizationReport
-from monitor.export.plan import ExportPlan
+from monitor.export.plan import GENERIC_CHANNEL, ExportPlan
 
 CAUTION = (
     "**Caution.** A filter adds lag and can hide faults. If this code feeds a control loop "
@@ -57,7 +57,7 @@ def _scaling(plan: ExportPlan) -> list[str]:
     f, acc = (15, 32) if q == "Q15" else (31, 64)
     lines = ["## Q format and scaling", "",
              f"Samples are {q}: `int{f + 1}_t`, value = sample / 2^{f} x full scale. "
-             "Convert a reading in units with `round(reading / full_scale * 2^{f})`, "
+             f"Convert a reading in units with `round(reading / full_scale * 2^{f})`, "
              "saturated to the type's range; the output uses the same scaling.", "",
              "| channel | full scale (units per +-1.0) | one LSB |", "|---|---|---|"]
     lines += [f"| {ch.name} | +-{ch.full_scale:g} | {ch.full_scale / 2 ** f:.6g} |"
@@ -90,7 +90,12 @@ def _build(plan: ExportPlan) -> list[str]:
     k = len(plan.channels)
     lines = ["## Build and check against the vectors", "",
              f"`{p}_vectors.csv` holds {k} input column(s) then {k} expected output "
-             "column(s), from tunetrace's Python model, after a header row.", "",
+             "column(s), from tunetrace's Python model, after a header row. The input "
+             "(seeded, the same on every export) starts at a non-zero level, so it checks "
+             "the steady start, then has level steps, a chirp from 0.5 Hz to 0.45 x the "
+             "rate, noise and single-sample spikes within 0.7 of "
+             + ("full scale, in the Q format." if plan.fixed else
+                "the channel's --full-scale (1.0 when not given)."), "",
              "```sh",
              f"gcc -std=c99 -O2 -Wall -Wextra -pedantic -o {p}_selftest {p}_selftest.c {p}.c",
              f"tail -n +2 {p}_vectors.csv | cut -d, -f1-{k} | ./{p}_selftest > got.csv",
@@ -141,6 +146,10 @@ def readme_text(plan: ExportPlan, report: QuantizationReport, chain_path: str,
         lines.append(f"- `{ch.name}` -> `{p}_{ch.ident}_step`: {stages or 'no stages'}"
                      + (f"; bypassed, not exported: {', '.join(ch.bypassed)}"
                         if ch.bypassed else ""))
+    if [ch.name for ch in plan.channels] == [GENERIC_CHANNEL]:
+        lines += ["", "Every stage of the chain selects every channel, so this one chain serves "
+                  f"any channel: keep one `{p}_{GENERIC_CHANNEL}_chain` per channel on the "
+                  "board (or export with --channels to name them)."]
     lines.append("")
     lines += _api(plan) + _scaling(plan) + _build(plan)
     lines += ["## Quantization report", "", "```", report.format_text(), "```", ""]

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 from scipy import signal
 
 from filters.design import design_stage
@@ -206,3 +208,26 @@ def test_gain_and_window_limits_are_named():
         fix_stage(big, Q15, 1.0)
     with pytest.raises(ValueError, match="target"):
         report_for_plans({}, 250.0, "c-q7")
+
+
+@given(st.lists(st.floats(-3.9, 3.9, allow_nan=False), min_size=1, max_size=5),
+       st.sampled_from([Q15, Q31]))
+def test_quantize_group_takes_the_smallest_shift_and_rounds_to_half_an_lsb(values, fmt):
+    ints, shift = quantize_group(values, fmt)
+    r = fmt.frac - shift
+    for v, i in zip(values, ints, strict=True):
+        assert fmt.min_int <= i <= fmt.max_int
+        assert abs(i / 2**r - v) <= 2.0 ** -(r + 1)
+    if shift:   # one shift less would not hold them
+        finer = [np.floor(v * 2 ** (r + 1) + 0.5) for v in values]
+        assert any(not fmt.min_int <= i <= fmt.max_int for i in finer)
+
+
+@pytest.mark.parametrize("kind,params,form", [
+    ("rc-highpass", {"cutoff_hz": 1.0}, "biquads"), ("dc-block", {"cutoff_hz": 1.0}, "biquads"),
+    ("ema", {"alpha": 0.5}, "biquads"), ("moving-average", {"window": 4}, "moving-average"),
+    ("median", {"window": 3}, "median"), ("gain", {"scale": 2.0}, "gain"),
+])
+def test_every_kind_has_an_export_form(kind, params, form):
+    plan = plan_stage(design(kind, **params), "zero", "stage 1")
+    assert plan.form == form and plan.start == "zero" and plan.label == "stage 1"
