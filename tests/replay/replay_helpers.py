@@ -12,6 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
+from monitor.bench.replay import CHAIN_TEXT as BENCH_CHAIN_TEXT
 from monitor.block import Block, Schema
 
 SCHEMA = Schema(("load", "current", "vib"), ("kg", "A", "g"))
@@ -19,22 +20,7 @@ RATE_HZ = 250.0
 
 # median(5) + notch + 4th-order Butterworth low-pass: the bench chain, and a
 # good chain for the weigh station's load cell.
-CHAIN_TEXT = """\
-[[stage]]
-kind = "median"
-window = 5
-
-[[stage]]
-kind = "notch"
-freq_hz = 50.0
-q = 30.0
-
-[[stage]]
-kind = "butterworth"
-band = "lowpass"
-order = 4
-cutoff_hz = 10.0
-"""
+CHAIN_TEXT = BENCH_CHAIN_TEXT
 
 
 def weigh_station(n: int, seed: int = 1) -> np.ndarray:

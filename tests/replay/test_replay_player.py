@@ -173,3 +173,21 @@ def test_pipeline_commands_pause_seek_and_speed(tmp_path):
         assert pipeline.status().frames == held + 250
     finally:
         pipeline.stop()
+
+
+def test_a_failing_recording_stops_with_a_visible_error_and_the_stream_goes_on(tmp_path):
+    from monitor.commands.common import start_recording
+
+    path = tmp_path / "rec.csv"
+    values = weigh_station(3000)
+    write_recording(path, values)
+    pipeline = Pipeline(ReplaySource(path, speed=None), ring_capacity=5000)
+    # /dev/full refuses every write with ENOSPC (Linux, man 4 full)
+    pipeline.submit(start_recording(pipeline, "/dev/full", force=True))
+    pipeline.start()
+    assert wait_until(lambda: not pipeline.status().running, timeout=20)
+    status = pipeline.status()
+    assert "No space left on device" in status.recording_error
+    assert status.recording is None
+    assert status.frames == 3000
+    np.testing.assert_array_equal(pipeline.ring.latest(5000).raw, values)
