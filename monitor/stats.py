@@ -16,6 +16,8 @@ import numpy as np
 
 from monitor.ring import Ring, RingSnapshot
 
+ROUNDING = 1e-12              # relative size below which a deviation is float rounding
+
 
 @dataclass(frozen=True)
 class ChannelStats:
@@ -72,5 +74,7 @@ def _ac_rms(values: np.ndarray, means: np.ndarray) -> np.ndarray:
     finite = ~np.isnan(deviation)
     counts = finite.sum(axis=0)
     squares = np.where(finite, deviation * deviation, 0.0).sum(axis=0)
-    return np.sqrt(np.divide(squares, counts, out=np.full(values.shape[1], np.nan),
-                             where=counts > 0))
+    rms = np.sqrt(np.divide(squares, counts, out=np.full(values.shape[1], np.nan),
+                            where=counts > 0))
+    # A constant channel's deviations are rounding of the mean, not noise.
+    return np.where(rms <= ROUNDING * np.maximum(1.0, np.abs(means)), 0.0, rms)

@@ -1,4 +1,4 @@
-"""Ring: capacity, wrap-around, totals, memory formula, and no torn copies under a live writer."""
+"""Ring: capacity, wrap-around, totals, memory formula, no torn copies; stats over snapshots."""
 
 from __future__ import annotations
 
@@ -105,3 +105,53 @@ def test_no_torn_copies_under_a_concurrent_writer():
     w.join(10)
     assert not errors, errors[0]
     assert ring.total > capacity * 10               # the writer really wrapped many times
+
+
+# -- monitor.stats over ring snapshots -----------------------------------------
+
+def test_stats_of_a_sine_on_an_offset():
+    from monitor.stats import ring_stats
+
+    # RMS of a sine of amplitude A is A / sqrt(2) (any circuits handbook).
+    n, rate = 10_000, 1000.0
+    t = np.arange(n) / rate
+    raw = np.column_stack([12.0 + 0.5 * np.sin(2 * np.pi * 50 * t), np.full(n, 3.0)])
+    ring = Ring(2, n)
+    ring.write(t, raw, raw * 0.1)
+    load, flat = ring_stats(ring, n)
+    assert load.mean_raw == pytest.approx(12.0, abs=1e-9)
+    assert load.noise_raw == pytest.approx(0.5 / np.sqrt(2), rel=1e-6)
+    assert load.reduction_db == pytest.approx(20.0, abs=1e-9)           # scaled by 0.1
+    assert (flat.noise_raw, flat.reduction_db) == (0.0, 0.0)            # no noise at all
+    assert load.samples == n
+
+
+def test_stats_noise_reduction_of_a_moving_average_on_white_noise():
+    from filters.chainfile import parse_chain
+    from filters.chainset import ChainSet
+    from monitor.stats import ring_stats
+
+    # Averaging N independent samples divides the variance by N (any statistics text):
+    # a 16-sample moving average takes 10 log10(16) = 12.04 dB off white noise.
+    rng = np.random.default_rng(11)
+    raw = rng.normal(5.0, 2.0, size=(320_000, 1))
+    chain = ChainSet(parse_chain('[[stage]]\nkind = "moving-average"\nwindow = 16\n'),
+                     ["x"], 1000.0)
+    filtered = chain.process(raw)
+    ring = Ring(1, 300_000)
+    ring.write(np.arange(320_000.0), raw, filtered)
+    (stats,) = ring_stats(ring, 300_000)
+    assert stats.reduction_db == pytest.approx(10 * np.log10(16), abs=0.1)
+    assert stats.mean_filtered == pytest.approx(5.0, abs=0.05)
+
+
+def test_stats_ignore_missing_samples_and_empty_ring():
+    from monitor.stats import noise_reduction_db, ring_stats
+
+    ring = Ring(1, 10)
+    assert ring_stats(ring, 10) == []
+    raw = np.array([[1.0], [np.nan], [3.0]])
+    ring.write(np.arange(3.0), raw, raw)
+    (stats,) = ring_stats(ring, 10)
+    assert (stats.mean_raw, stats.noise_raw, stats.samples) == (2.0, 1.0, 2)
+    assert noise_reduction_db(1.0, 0.0) == np.inf
