@@ -66,18 +66,18 @@ class ChainSet:
         for column, name in enumerate(self.channels):
             key = tuple(i for i, _ in spec.stages_for(name))
             members.setdefault(key, []).append(column)
-        self._groups: list[tuple[tuple[int, ...], np.ndarray, StageRun]] = []
+        self._groups: list[tuple[np.ndarray, StageRun]] = []  # (columns, their run)
         self._place: dict[str, tuple[StageRun, int, tuple[int, ...]]] = {}
         for key, columns in members.items():
             width = len(columns)
             stages = [make_stage(self.designs[i], width, start=spec.stages[i].start,
                                  bypass=spec.stages[i].bypass) for i in key]
             run = StageRun(stages, width)
-            self._groups.append((key, np.array(columns, dtype=np.intp), run))
+            self._groups.append((np.array(columns, dtype=np.intp), run))
             for position, column in enumerate(columns):
                 self._place[self.channels[column]] = (run, position, key)
         # one group over all columns in order: no gather/scatter per block
-        self._whole = (self._groups[0][2] if len(self._groups) == 1
+        self._whole = (self._groups[0][1] if len(self._groups) == 1
                        and len(self.channels) > 0 else None)
         self._width = len(self.channels)
         self._lane = self._whole.lane if self._whole is not None else None
@@ -136,11 +136,11 @@ class ChainSet:
             out = self._whole.process(x)
         else:
             out = np.empty((n, k))
-            for _, columns, run in self._groups:
+            for columns, run in self._groups:
                 out[:, columns] = run.process(x[:, columns])
         if missing is not None:
             out[missing] = raw[missing]
-            for _, columns, run in self._groups:
+            for columns, run in self._groups:
                 run.reset(never[columns])
         return out
 
@@ -164,7 +164,7 @@ class ChainSet:
 
     def reset(self) -> None:
         """Forget all state; the next sample starts each stage by its start policy."""
-        for _, _, run in self._groups:
+        for _, run in self._groups:
             run.reset(None)
 
     def continue_from(self, old: ChainSet) -> None:
@@ -186,7 +186,7 @@ class ChainSet:
                             if position < len(old_key) else None)
                 if old_spec is not None and old_spec.kind == spec.kind:
                     old_stage = old_run.stages[position]
-                    if old_spec == spec and old.rate_hz == self.rate_hz:
+                    if _same_design(old_spec, spec) and old.rate_hz == self.rate_hz:
                         stage.copy_state(column, old_stage, old_column)
                     else:
                         stage.settle(column, old_bounds[position], old_bounds[position + 1])
@@ -195,3 +195,8 @@ class ChainSet:
                     stage.settle(column, last_output, last_output)
             run.bounds[:, column] = bounds
             run.refresh()
+
+
+def _same_design(a: StageSpec, b: StageSpec) -> bool:
+    """True when two stages compute the same thing (which channels they select aside)."""
+    return (a.kind, a.params, a.bypass, a.start) == (b.kind, b.params, b.bypass, b.start)

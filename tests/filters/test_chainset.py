@@ -277,6 +277,16 @@ def test_retune_keeps_unchanged_stages_exactly():
     np.testing.assert_array_equal(y, 2.0 * reference[150:])
 
 
+def test_retune_that_only_widens_a_stage_keeps_its_state():
+    median = StageSpec("median", {"window": 5}, channels=("load",))
+    old = ChainSet(ChainSpec((median,)), CHANNELS, RATE_HZ)
+    old.process(DATA[:100])
+    wider = StageSpec("median", {"window": 5}, channels=("load", "vib"))
+    y = retune(old, ChainSpec((wider,))).process(DATA[100:])
+    plain = ChainSet(ChainSpec((median,)), CHANNELS, RATE_HZ).process(DATA)
+    np.testing.assert_array_equal(y[:, 0], plain[100:, 0])
+
+
 def test_retune_inserting_a_stage_is_continuous():
     x = 10.0 + 0.01 * np.arange(1200.0)[:, None] * np.ones(3)
     old = ChainSet(ChainSpec(lowpass(8.0).stages[1:]), CHANNELS, RATE_HZ)
