@@ -171,7 +171,7 @@ def _decoder_options(args: argparse.Namespace, sim: Any) -> dict[str, Any]:
         fields = [name.strip() for name in fields_text.split(",")]
     return {
         "layout": layout, "fields": fields, "crc": crc or "none",
-        "time_field": time_field, "time_unit": time_unit or "s",
+        "time_field": time_field, "time_unit": time_unit,
         "time_bits": getattr(args, "time_bits", None),
         "counter_field": counter_field, "counter_bits": getattr(args, "counter_bits", None),
     }

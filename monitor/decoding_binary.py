@@ -81,6 +81,13 @@ def split_name_unit(field: str) -> tuple[str, str]:
     return match.group(1), match.group(2) or ""
 
 
+def _check_bits(what: str, bits: int | None, field_bytes: int) -> None:
+    """ValueError when a wrap width is wider than the field that carries it."""
+    if bits is not None and bits > 8 * field_bytes:
+        raise ValueError(f"{what} bits {bits} exceed the {8 * field_bytes}-bit field; "
+                         f"allowed up to {8 * field_bytes}")
+
+
 class BinaryDecoder:
     """Fixed-layout binary frames -> Block, with the decoder interface of DEVELOPERS.md.
 
@@ -89,9 +96,10 @@ class BinaryDecoder:
     crc:           "none", "crc16-ccitt", "crc16-modbus" or "crc32": a checksum
                    over the payload sits after it (layout byte order; MODBUS
                    always low byte first) and is checked and stripped.
-    time_field:    field holding the device time, in `time_unit` (s, ms, us),
-                   wrapping at `time_bits` (16 or 32; default: the field's width
-                   for 16- and 32-bit integer fields, else no wrap).
+    time_field:    field holding the device time, in `time_unit` (s, ms, us;
+                   required for integer fields, s for float fields), wrapping
+                   at `time_bits` (16 or 32; default: the field's width for 16-
+                   and 32-bit integer fields, else no wrap).
     counter_field: field holding the frame counter, wrapping at `counter_bits`
                    (8, 16 or 32; default: the field's width).
     The other fields are the channels, in layout order, as float64.
@@ -100,7 +108,7 @@ class BinaryDecoder:
     """
 
     def __init__(self, layout: str, fields: Sequence[str], *, crc: str = "none",
-                 time_field: str | None = None, time_unit: str = "us",
+                 time_field: str | None = None, time_unit: str | None = None,
                  time_bits: int | None = None, counter_field: str | None = None,
                  counter_bits: int | None = None) -> None:
         order, items = parse_layout(layout)
@@ -127,18 +135,27 @@ class BinaryDecoder:
         self._counter_index = self._field_index(index, counter_field, "counter field")
         self.clock: DeviceClock | None = None
         self.counter: SequenceCounter | None = None
+        if time_field is not None and time_field == counter_field:
+            raise ValueError(f"time field and counter field are both '{time_field}'; "
+                             "give two different fields")
         if self._time_index is not None:
             kind, size = items[self._time_index][0][1], items[self._time_index][2]
+            if kind == "f":
+                if time_bits is not None:
+                    raise ValueError(f"time bits {time_bits} need an integer time field; "
+                                     f"'{time_field}' is floating point")
+            elif time_unit is None:
+                raise ValueError(f"time field '{time_field}' holds integer ticks; give their "
+                                 "unit: s, ms or us")
+            _check_bits("time", time_bits, size)
             if time_bits is None and kind in "iu" and size * 8 in (16, 32):
                 time_bits = size * 8
-            if time_bits is not None and kind == "f":
-                raise ValueError(f"time bits {time_bits} need an integer time field; "
-                                 f"'{time_field}' is floating point")
-            self.clock = DeviceClock(time_unit, time_bits)
+            self.clock = DeviceClock(time_unit or "s", time_bits)
         if self._counter_index is not None:
             kind, size = items[self._counter_index][0][1], items[self._counter_index][2]
             if kind not in "iu":
                 raise ValueError(f"counter field '{counter_field}' must be an integer field")
+            _check_bits("counter", counter_bits, size)
             self.counter = SequenceCounter(counter_bits or min(size * 8, 32))
         special = {self._time_index, self._counter_index}
         self._channel_fields = [f"f{i}" for i in range(len(items)) if i not in special]

@@ -49,7 +49,7 @@ def run(quick: bool) -> dict[str, float | int | str | bool]:
     def decode_all() -> None:
         framer = CobsFramer()
         decoder = BinaryDecoder(layout, fields, crc="crc16-ccitt",
-                                time_field="t_us", counter_field="seq")
+                                time_field="t_us", time_unit="us", counter_field="seq")
         rows = 0
         for chunk in reads:
             block = decoder.decode(framer.feed(chunk), 0.0)

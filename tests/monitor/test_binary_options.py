@@ -43,6 +43,8 @@ def test_sim_url_describes_its_own_frames():
     (["live", "/dev/ttyX", "--framing", "cobs", "--layout", "<H2f", "--fields", "n,a,b",
       "--time-column", "t"], "time field 't' is not one of the fields"),
     (["live", "sim://?format=cobs&crc=crc7"], "crc 'crc7' is not known"),
+    (["live", "/dev/ttyX", "--framing", "cobs", "--layout", "<HI2f", "--fields", "n,t,a,b",
+      "--time-column", "t"], "integer ticks; give their unit"),
 ])
 def test_mistakes_give_one_sentence_naming_the_option(argv, message):
     args = parse(*argv)

@@ -108,7 +108,8 @@ def test_pty_carries_binary_frames_with_errors_drops_and_garbage(framing):
     master, slave = os.openpty()
     source = open_byte_source(os.ttyname(slave), 921600, reconnect=False)
     layout, fields = sim_layout(CHANNELS)
-    decoder = BinaryDecoder(layout, fields, crc=CRC, time_field="t_us", counter_field="seq")
+    decoder = BinaryDecoder(layout, fields, crc=CRC, time_field="t_us", time_unit="us",
+                            counter_field="seq")
     framer = make_framer(framing, frame_length=decoder.frame_size, check=decoder.crc_ok)
 
     def board():

@@ -30,7 +30,7 @@ def frames_for(layout, rows, crc="none"):
 @pytest.mark.parametrize("layout", ["<HI3f", ">HI3f", "!HI3f", "<H2xI3d"])
 def test_decodes_what_struct_packs(layout, crc):
     rows = [(i, 1000 * i, 0.5 * i, -1.25, 3.0e-3 * i) for i in range(50)]
-    decoder = BinaryDecoder(layout, FIELDS, crc=crc, time_field="t_us",
+    decoder = BinaryDecoder(layout, FIELDS, crc=crc, time_field="t_us", time_unit="us",
                             counter_field="seq")
     block = decoder.decode(frames_for(layout, rows, crc), t_host=12.5)
     assert decoder.schema.channels == ("load", "current", "vib")
@@ -92,7 +92,8 @@ def test_sim_frames_round_trip(n, chunk, framing, crc, seed):
     t_us = counters * 4000
     wire = encode_samples(values, counters, t_us, framing, crc)
     layout, fields = sim_layout(3)
-    decoder = BinaryDecoder(layout, fields, crc=crc, time_field="t_us", counter_field="seq")
+    decoder = BinaryDecoder(layout, fields, crc=crc, time_field="t_us", time_unit="us",
+                            counter_field="seq")
     framer = make_framer(framing, frame_length=decoder.frame_size, check=decoder.crc_ok)
     blocks = [decoder.decode(framer.feed(wire[i:i + chunk]), 0.0)
               for i in range(0, len(wire), chunk)]
@@ -123,6 +124,9 @@ def test_float_time_field_has_no_wrap_and_timing_is_reported():
     ({"counter_field": "load"}, "integer field"),
     ({"fields": ["seq", "seq", "a", "b", "c"]}, "unique"),
     ({"time_field": "load", "time_bits": 16}, "integer time field"),
+    ({"time_field": "t_us"}, "integer ticks; give their unit"),
+    ({"time_field": "seq", "counter_field": "seq"}, "two different fields"),
+    ({"counter_field": "seq", "counter_bits": 32}, "exceed the 16-bit field"),
 ])
 def test_bad_options_name_what_to_fix(kwargs, message):
     options = {"layout": "<HI3f", "fields": FIELDS} | kwargs
