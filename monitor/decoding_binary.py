@@ -8,6 +8,11 @@ is decoded at once: the frames are joined, viewed as an (n, frame bytes)
 uint8 array, checked against their CRC, and read through a numpy structured
 dtype built from the layout, so the cost per frame is a few numpy operations
 shared by the whole batch.
+
+Caution: a CRC-16 lets through about one in 65536 randomly corrupted frames
+and a counter cannot tell a lost frame from a board that skipped a sample;
+data that feeds a control loop or a safety decision needs the checks of that
+system and its standards, not this monitor's.
 """
 
 from __future__ import annotations
