@@ -12,26 +12,26 @@ from __future__ import annotations
 
 import csv
 import os
-import re
 from collections.abc import Iterator
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
 from monitor.block import Block, Schema
+from replay.header import (
+    MAX_HEADER_LINE,
+    RecordingError,
+    RecordingHeader,
+    read_header,
+    split_unit,
+    time_scale_of,
+)
+
+__all__ = ["Gap", "Recording", "RecordingError", "RecordingHeader", "Segment",
+           "read_recording"]
 
 CHUNK_BYTES = 1 << 20
-_MAX_HEADER_LINE = 1 << 16
 _SAMPLE_LINES = 50
-# Time column names other loggers use, and the seconds per unit of each suffix
-# (common practice, no single source).
-_TIME_BASES = ("t", "time", "timestamp", "t_host", "elapsed", "seconds", "millis", "micros")
-_TIME_SCALES = {"": 1.0, "s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6}
-_UNIT_RE = re.compile(r"^\s*(.*?)\s*\[([^\]]*)\]\s*$")
-
-
-class RecordingError(ValueError):
-    """A recording file cannot be used; the message is one sentence naming what to fix."""
 
 
 @dataclass(frozen=True)
@@ -43,67 +43,12 @@ class Gap:
 
 
 @dataclass
-class RecordingHeader:
-    """What the header of a recording says.
-
-    format_version: 1 for tunetrace recordings, None for plain CSV from other loggers.
-    columns:        the CSV header row as written.
-    rate_hz, rate_origin: the rate line of a tunetrace recording, else None.
-    channels_units: (name, unit) pairs of the `# channels:` line (or the header row).
-    chain_text:     the chain at start, joined from `# chain:` lines, or None.
-    time_column:    the column that gives t_host (seconds x time_scale), or None (rows / rate).
-    ignored_columns: columns skipped because they do not hold numbers.
-    notes:          other comment lines of the header, without the leading '# '.
-    """
-
-    format_version: int | None = None
-    tool: str | None = None
-    started: str | None = None
-    source: str | None = None
-    rate_hz: float | None = None
-    rate_origin: str | None = None
-    channels_units: tuple[tuple[str, str], ...] = ()
-    chain_text: str | None = None
-    columns: tuple[str, ...] = ()
-    time_column: str | None = None
-    time_scale: float = 1.0
-    device_time_column: str | None = None
-    counter_column: str | None = None
-    filtered_columns: tuple[str, ...] = ()
-    ignored_columns: tuple[str, ...] = ()
-    delimiter: str = ","
-    notes: list[str] = field(default_factory=list)
-
-
-@dataclass
 class Segment:
     """Consecutive good data rows: the Block and, when asked for, their text lines."""
 
     block: Block
     lines: list[str] | None
     first_row: int
-
-
-def split_unit(name: str) -> tuple[str, str]:
-    """'load [kg]' or 'load[kg]' -> ('load', 'kg'); no brackets -> (name, '')."""
-    match = _UNIT_RE.match(name)
-    return (match.group(1), match.group(2).strip()) if match else (name.strip(), "")
-
-
-def _time_scale_of(name: str) -> float | None:
-    """Seconds per unit if `name` looks like a time column, else None."""
-    base, unit = split_unit(name)
-    base = base.lower()
-    if unit:
-        return _TIME_SCALES.get(unit.lower()) if base in _TIME_BASES else None
-    if base == "millis":
-        return 1e-3
-    if base == "micros":
-        return 1e-6
-    stem, _, suffix = base.rpartition("_")
-    if stem in _TIME_BASES and suffix in _TIME_SCALES:
-        return _TIME_SCALES[suffix]
-    return 1.0 if base in _TIME_BASES else None
 
 
 def _parses(text: str) -> bool:
@@ -168,7 +113,7 @@ class Recording:
         self._index: list[tuple[int, float, int]] = []  # (byte offset, first t, row number)
         try:
             with _open(self.path) as f:
-                self.header, self._data_start = self._read_header(f)
+                self.header, self._data_start = read_header(f, self.path)
             self._setup_columns(time_column)
             self._t_first, self._rate_estimate = self._peek()
         except OSError as exc:
@@ -229,62 +174,6 @@ class Recording:
 
     # -- header ----------------------------------------------------------------
 
-    def _read_header(self, f) -> tuple[RecordingHeader, int]:
-        header = RecordingHeader()
-        chain: list[str] = []
-        first = True
-        while True:
-            raw = f.readline(_MAX_HEADER_LINE)
-            if not raw:
-                raise RecordingError(f"{self.path} has no header row; a CSV file needs a "
-                                     "first line naming its columns.")
-            if len(raw) >= _MAX_HEADER_LINE and not raw.endswith(b"\n"):
-                raise RecordingError(f"{self.path} does not look like a CSV file (a line "
-                                     f"longer than {_MAX_HEADER_LINE} bytes).")
-            line = raw.decode("utf-8", errors="replace").rstrip("\r\n")
-            if first and line.startswith("# tunetrace recording"):
-                version = line.rsplit(" ", 1)[-1]
-                if version != "1":
-                    raise RecordingError(f"{self.path} is a tunetrace recording of format "
-                                         f"{version!r}; this version reads format 1.")
-                header.format_version = 1
-            elif line.startswith("#"):
-                self._header_comment(header, line[1:].strip(), line, chain)
-            elif line.strip():
-                break
-            first = False
-        header.chain_text = "\n".join(chain) + "\n" if chain else None
-        header.delimiter = "," if header.format_version else _sniff_delimiter(line)
-        names = next(csv.reader([line], delimiter=header.delimiter))
-        header.columns = tuple(name.strip() for name in names)
-        if len(set(header.columns)) != len(header.columns):
-            raise RecordingError(f"{self.path}: the header row names a column twice; "
-                                 "give every column its own name.")
-        return header, f.tell()
-
-    @staticmethod
-    def _header_comment(header: RecordingHeader, body: str, line: str, chain: list[str]) -> None:
-        key, _, value = body.partition(":")
-        value = value.strip()
-        if header.format_version and key == "chain":
-            chain.append(line.split(":", 1)[1][1:] if ": " in line else "")
-        elif header.format_version and key == "rate_hz":
-            number, _, origin = value.partition(" ")
-            try:
-                header.rate_hz = float(number)
-            except ValueError:
-                header.rate_hz = None
-            header.rate_origin = origin.strip("() ") or None
-        elif header.format_version and key == "channels":
-            header.channels_units = tuple(split_unit(item) for item in value.split(",")
-                                          if item.strip())
-        elif header.format_version and key in ("tool", "started", "source"):
-            setattr(header, key, value)
-        elif header.format_version and key in ("time_column", "counter_column"):
-            setattr(header, "device_time_column" if key == "time_column" else key, value)
-        else:
-            header.notes.append(body)
-
     def _setup_columns(self, time_column: str | None) -> None:
         h = self.header
         cols = list(h.columns)
@@ -315,11 +204,11 @@ class Recording:
                 if time_column not in names:
                     raise RecordingError(f"--time-column {time_column!r} does not hold "
                                          "numbers; name a column of seconds or give --rate HZ.")
-                h.time_scale = _time_scale_of(time_column) or 1.0
+                h.time_scale = time_scale_of(time_column) or 1.0
                 h.time_column = time_column
             else:
                 for name in names:
-                    scale = _time_scale_of(name)
+                    scale = time_scale_of(name)
                     if scale is not None:
                         h.time_column, h.time_scale = name, scale
                         break
@@ -357,7 +246,7 @@ class Recording:
         with _open(self.path) as f:
             f.seek(self._data_start)
             for _ in range(_SAMPLE_LINES):
-                raw = f.readline(_MAX_HEADER_LINE)
+                raw = f.readline(MAX_HEADER_LINE)
                 if not raw:
                     break
                 line = raw.decode("utf-8", errors="replace").strip()
@@ -551,16 +440,6 @@ def _tail(segment: Segment, start: int) -> Segment:
                   None if b.counter is None else b.counter[start:])
     lines = None if segment.lines is None else segment.lines[start:]
     return Segment(block, lines, segment.first_row + start)
-
-
-def _sniff_delimiter(line: str) -> str:
-    """',' unless the header row only makes sense split at ';' or a tab."""
-    if "," in line:
-        return ","
-    for candidate in (";", "\t"):
-        if candidate in line:
-            return candidate
-    return ","
 
 
 def read_recording(path: str | os.PathLike[str], time_column: str | None = None,
