@@ -1,65 +1,105 @@
 """Min/max decimation per pixel column, and prepacked float32 vertices for line visuals.
 
-A window of n samples drawn into W columns becomes buckets of `spb` samples
-(a power of two, so bucket edges stay fixed as the window rolls); each bucket
-contributes its minimum and maximum, so spikes survive and the number of
-vertices depends on W, not n. BucketCache keeps the buckets of the previous
-frame and computes only the samples that arrived since, so a rolling frame
-costs O(new samples + W).
+A window of n samples drawn into W pixel columns becomes buckets of
+spb = ceil(n / W) samples. Each bucket is drawn as one vertical segment from
+its minimum to its maximum, widened to take in the previous bucket's last
+sample so the trace stays connected: spikes survive, the number of vertices
+depends on W, not n, and every pixel is covered about once (a min/max line
+strip would cover each column twice, which is what a software rasterizer
+pays for).
+
+BucketCache keeps the buckets of the previous frame (edges at multiples of
+spb, in absolute sample indices, so they stay put as the window rolls) and
+computes only the samples that arrived since: a rolling frame costs
+O(new samples + W).
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 
-def samples_per_bucket(samples: int, columns: int) -> int:
-    """Largest power of two <= samples / columns (at least 1): between W and 2W buckets."""
-    ratio = samples / max(1, columns)
-    if ratio < 2:
-        return 1
-    return 1 << int(np.floor(np.log2(ratio)))
+@dataclass(frozen=True)
+class Buckets:
+    """Per bucket: x (b,) its mid-time; mins, maxs, lasts (b, c) its extremes and last sample."""
+
+    x: np.ndarray
+    mins: np.ndarray
+    maxs: np.ndarray
+    lasts: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.x)
+
+    def __getitem__(self, index: slice) -> Buckets:
+        return Buckets(self.x[index], self.mins[index], self.maxs[index], self.lasts[index])
+
+    @staticmethod
+    def empty(columns: int) -> Buckets:
+        none = np.empty((0, columns), np.float32)
+        return Buckets(np.empty(0), none, none, none)
+
+    @staticmethod
+    def join(a: Buckets, b: Buckets) -> Buckets:
+        return Buckets(*(np.concatenate([getattr(a, f), getattr(b, f)])
+                         for f in ("x", "mins", "maxs", "lasts")))
 
 
-def minmax(values: np.ndarray, spb: int) -> tuple[np.ndarray, np.ndarray]:
-    """Bucket extremes. values: (n, c) -> mins, maxs: (ceil(n / spb), c); NaN is skipped."""
+def samples_per_bucket(samples: float, columns: int) -> int:
+    """ceil(samples / columns), at least 1: one bucket per pixel column."""
+    return max(1, int(np.ceil(samples / max(1, columns))))
+
+
+def bucketize(t: np.ndarray, values: np.ndarray, spb: int, origin: float = 0.0) -> Buckets:
+    """Buckets of `spb` samples. t: (n,) s, values: (n, c); the last bucket may be partial.
+
+    NaN is skipped (a bucket of NaN only stays NaN, and draws nothing).
+    """
     n, c = values.shape
     full = n // spb
     head = values[: full * spb].reshape(full, spb, c)
     mins = np.fmin.reduce(head, axis=1)
     maxs = np.fmax.reduce(head, axis=1)
+    lasts = values[spb - 1::spb]
+    first_t, last_t = t[::spb], t[spb - 1::spb]
     if full * spb < n:
         tail = values[full * spb:]
         mins = np.vstack([mins, np.fmin.reduce(tail, axis=0)[None, :]])
         maxs = np.vstack([maxs, np.fmax.reduce(tail, axis=0)[None, :]])
-    return mins, maxs
+        lasts = np.vstack([lasts, values[-1:]])
+        last_t = np.append(last_t, t[-1])
+    return Buckets(0.5 * (first_t + last_t) - origin, mins, maxs, lasts)
 
 
-def bucket_centres(t: np.ndarray, spb: int) -> np.ndarray:
-    """Mid-time of each bucket of `spb` samples of t (n,) -> (ceil(n / spb),)."""
-    first = t[::spb]
-    last = t[spb - 1::spb]
-    if len(last) < len(first):
-        last = np.append(last, t[-1])
-    return 0.5 * (first + last)
+def pack_columns(buckets: Buckets, pad: np.ndarray) -> np.ndarray:
+    """One vertical segment per bucket -> (c, 2b, 2) float32 for connect="segments".
 
-
-def pack_minmax(x: np.ndarray, mins: np.ndarray, maxs: np.ndarray) -> np.ndarray:
-    """Line-strip vertices per column. x: (b,), mins/maxs: (b, c) -> (c, 2b, 2) float32.
-
-    Each bucket gives two vertices at its x: (x, min) then (x, max).
+    Bucket b spans min..max of its samples and bucket b-1's last sample, plus
+    pad (c,) data units at each end: half a pixel covers the end pixel GL's
+    half-open line rule leaves out and keeps a flat stretch one pixel tall
+    (GL widens steep lines sideways only, so the line width needs no pad).
     """
-    b, c = mins.shape
+    lo = buckets.mins.astype(np.float32, copy=True)
+    hi = buckets.maxs.astype(np.float32, copy=True)
+    if len(buckets) > 1:
+        np.fmin(lo[1:], buckets.lasts[:-1], out=lo[1:])
+        np.fmax(hi[1:], buckets.lasts[:-1], out=hi[1:])
+    pad = np.asarray(pad, np.float32)
+    lo -= pad
+    hi += pad
+    b, c = lo.shape
     out = np.empty((c, 2 * b, 2), dtype=np.float32)
-    out[:, 0::2, 0] = x
-    out[:, 1::2, 0] = x
-    out[:, 0::2, 1] = mins.T
-    out[:, 1::2, 1] = maxs.T
+    out[:, 0::2, 0] = buckets.x
+    out[:, 1::2, 0] = buckets.x
+    out[:, 0::2, 1] = lo.T
+    out[:, 1::2, 1] = hi.T
     return out
 
 
 def pack_every(x: np.ndarray, values: np.ndarray) -> np.ndarray:
-    """Every sample as a vertex (undecimated reference). x: (n,), values: (n, c) -> (c, n, 2)."""
+    """Every sample as a vertex for connect="strip". x: (n,), values: (n, c) -> (c, n, 2)."""
     n, c = values.shape
     out = np.empty((c, n, 2), dtype=np.float32)
     out[:, :, 0] = x
@@ -68,62 +108,52 @@ def pack_every(x: np.ndarray, values: np.ndarray) -> np.ndarray:
 
 
 class BucketCache:
-    """Bucket extremes of a history, kept from frame to frame.
+    """Buckets of a History kept from frame to frame.
 
-    `update(history, i0, i1, spb)` returns (x (b,), mins (b, c), maxs (b, c)) for
-    absolute sample indices [i0, i1); buckets start at multiples of `spb`.
-    Buckets already computed are reused; only new or partial ones are computed.
+    `update(history, i0, i1, spb, origin)` returns the Buckets covering absolute
+    sample indices [i0, i1); bucket edges sit at multiples of `spb`. Complete
+    buckets computed before are reused; only new or partial ones are computed.
     """
 
     def __init__(self) -> None:
         self.spb = 0
         self.first = 0          # absolute index of the first cached bucket's first sample
         self.complete_end = 0   # absolute index up to which cached buckets are complete
-        self.x = np.empty(0)
-        self.mins = np.empty((0, 0), dtype=np.float32)
-        self.maxs = np.empty((0, 0), dtype=np.float32)
+        self.origin = 0.0
+        self.cached = Buckets.empty(0)
 
-    def update(self, history, i0: int, i1: int, spb: int,
-               origin: float = 0.0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Buckets covering [i0, i1) of `history` (a History); x is t_host - origin."""
+    def update(self, history, i0: int, i1: int, spb: int, origin: float = 0.0) -> Buckets:
+        """Buckets of `history` samples [i0, i1); x is t_host - origin (s)."""
         i0, i1 = max(i0, history.start), min(i1, history.end)
-        columns = history.columns
-        no_buckets = np.empty((0, columns), np.float32)
-        empty = (np.empty(0), no_buckets, no_buckets)
         if i1 <= i0:
-            return empty
-        aligned = (i0 // spb) * spb
-        head = empty
-        start = aligned
-        if aligned < history.start:
+            return Buckets.empty(history.columns)
+        start = (i0 // spb) * spb
+        head = Buckets.empty(history.columns)
+        if start < history.start:
             # The oldest bucket is cut by the history's start: computed afresh every frame.
-            start = aligned + spb
+            start += spb
             t, values = history.slice(i0, min(start, i1))
-            head = (bucket_centres(t, len(t)) - origin, *minmax(values, len(values)))
-        body = self._body(history, start, i1, spb, origin) if start < i1 else empty
-        return tuple(np.concatenate([h, b]) for h, b in zip(head, body, strict=True))
+            head = bucketize(t, values, len(t), origin)
+        if start >= i1:
+            return head
+        return Buckets.join(head, self._body(history, start, i1, spb, origin))
 
-    def _body(self, history, start: int, i1: int, spb: int, origin: float):
-        """Aligned buckets from `start` (a multiple of spb) to i1, reusing complete cached ones."""
-        reuse = (spb == self.spb and self.first <= start < self.complete_end <= i1
-                 and self.mins.shape[1] == history.columns)
+    def _body(self, history, start: int, i1: int, spb: int, origin: float) -> Buckets:
+        """Aligned buckets from `start` (a multiple of spb) to i1, reusing cached ones."""
+        reuse = (spb == self.spb and origin == self.origin
+                 and self.first <= start < self.complete_end <= i1
+                 and self.cached.mins.shape[1] == history.columns)
         if reuse:
-            drop = (start - self.first) // spb
-            x, mins, maxs = (a[drop:] for a in (self.x, self.mins, self.maxs))
+            kept = self.cached[(start - self.first) // spb:]
             compute_from = self.complete_end
         else:
-            x = np.empty(0)
-            mins = maxs = np.empty((0, history.columns), dtype=np.float32)
+            kept = Buckets.empty(history.columns)
             compute_from = start
         t, values = history.slice(compute_from, i1)
-        if len(t):
-            new_min, new_max = minmax(values, spb)
-            x = np.concatenate([x, bucket_centres(t, spb) - origin])
-            mins = np.concatenate([mins, new_min])
-            maxs = np.concatenate([maxs, new_max])
+        result = Buckets.join(kept, bucketize(t, values, spb, origin)) if len(t) else kept
         complete_end = compute_from + (len(t) // spb) * spb
-        n_complete = (complete_end - start) // spb
         # Cache complete buckets only; a partial last bucket is recomputed next frame.
-        self.spb, self.first, self.complete_end = spb, start, complete_end
-        self.x, self.mins, self.maxs = x[:n_complete], mins[:n_complete], maxs[:n_complete]
-        return x, mins, maxs
+        self.spb, self.first, self.origin = spb, start, origin
+        self.complete_end = complete_end
+        self.cached = result[:(complete_end - start) // spb]
+        return result

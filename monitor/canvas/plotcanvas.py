@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from monitor.canvas import palette
-from monitor.canvas.decimate import BucketCache, pack_every, pack_minmax, samples_per_bucket
+from monitor.canvas.decimate import BucketCache, pack_columns, pack_every, samples_per_bucket
 from monitor.canvas.history import History
 from monitor.canvas.layout import compute_layout
 from monitor.canvas.marks import Marks, flat_2d
@@ -22,7 +22,6 @@ from monitor.canvas.spectrum_panel import MAX_SEGMENTS, NPERSEG, SpectrumPanel, 
 from monitor.canvas.time_panel import TimePanel
 
 SPECTRUM_SAMPLES = (MAX_SEGMENTS + 1) * NPERSEG // 2
-BUCKETS_PER_COLUMN = 2   # 2 to 4 min/max buckets per pixel column: extremes land within a column
 
 
 @dataclass
@@ -133,20 +132,25 @@ class PlotCanvas:
         i1 = min(history.end, i1 + 1)
         self.window = (i0, i1)
         k = len(self.channels)
-        if state.decimate:
-            spb = samples_per_bucket(i1 - i0, BUCKETS_PER_COLUMN * self.layout.lanes[0].w)
-            x, mins, maxs = self.cache.update(history, i0, i1, spb, origin)
-            verts = pack_minmax(x, mins, maxs)
-            lo, hi = (np.fmin.reduce(mins, axis=0), np.fmax.reduce(maxs, axis=0)) if len(x) \
-                else (np.full(2 * k, np.nan), np.full(2 * k, np.nan))
+        columns = self.layout.lanes[0].w
+        if state.decimate and i1 - i0 > 2 * columns:
+            # Bucket size from the window length (steady while it rolls), not from i1 - i0.
+            spb = samples_per_bucket((x1 - x0) * self.rate_hz, columns)
+            buckets = self.cache.update(history, i0, i1, spb, origin)
+            lo, hi = np.fmin.reduce(buckets.mins, axis=0), np.fmax.reduce(buckets.maxs, axis=0)
         else:
+            buckets = None
             t, values = history.slice(i0, i1)
-            verts = pack_every(t - origin, values)
             lo, hi = np.fmin.reduce(values, axis=0), np.fmax.reduce(values, axis=0)
-        self.time.set_traces(verts[:k], verts[k:])
         if state.following:
             extremes = np.column_stack([np.fmin(lo[:k], lo[k:]), np.fmax(hi[:k], hi[k:])])
             self.time.set_view(x0, x1, extremes)
+        if buckets is None:
+            verts, connect = pack_every(t - origin, values), "strip"
+        else:
+            pixel = np.array([self.time.pixel_height(c) for c in range(k)] * 2, np.float32)
+            verts, connect = pack_columns(buckets, 0.5 * pixel), "segments"
+        self.time.set_traces(verts[:k], verts[k:], connect)
 
     def show_spectrum(self, history: History, selected: int, designs: Sequence) -> None:
         """Welch PSD of the selected channel over the visible window (its newest part)."""

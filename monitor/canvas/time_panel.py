@@ -72,11 +72,22 @@ class TimePanel:
     def moved_by_user(self) -> bool:
         return any(area.moved_by_user() for area in self.lanes)
 
-    def set_traces(self, raw: np.ndarray, filtered: np.ndarray) -> None:
-        """Vertices per channel: raw, filtered: (channels, m, 2) float32 in (x, value)."""
+    def set_traces(self, raw: np.ndarray, filtered: np.ndarray, connect: str = "strip") -> None:
+        """Vertices per channel: raw, filtered: (channels, m, 2) float32 in (x, value).
+
+        connect: "strip" (one polyline) or "segments" (pairs: decimated columns).
+        """
         for k in range(len(self.channels)):
             for line, verts in ((self.raw_lines[k], raw[k]), (self.filtered_lines[k], filtered[k])):
-                line.set_data(pos=verts if len(verts) >= 2 else np.zeros((2, 2), np.float32))
+                ok = len(verts) >= 2
+                line.set_data(pos=verts if ok else np.zeros((2, 2), np.float32),
+                              connect=connect if ok else "strip")
+
+    def pixel_height(self, channel: int) -> float:
+        """One pixel of `channel`'s lane in its data units."""
+        area = self.lanes[self.lane_of(channel)]
+        _, _, y0, y1 = area.range
+        return (y1 - y0) / area.rect.h
 
     def set_view(self, x0: float, x1: float, extremes: np.ndarray) -> None:
         """Show x in [x0, x1], autoscale each lane; extremes: (channels, 2) data lo, hi."""

@@ -8,9 +8,10 @@ from hypothesis import strategies as st
 
 from monitor.canvas.decimate import (
     BucketCache,
-    minmax,
+    Buckets,
+    bucketize,
+    pack_columns,
     pack_every,
-    pack_minmax,
     samples_per_bucket,
 )
 from monitor.canvas.history import History
@@ -27,35 +28,42 @@ def brute_minmax(values: np.ndarray, spb: int, start: int = 0):
     return np.array(mins), np.array(maxs)
 
 
-def test_minmax_matches_a_loop_with_a_partial_tail():
+def test_buckets_match_a_loop_with_a_partial_tail():
     values = np.random.default_rng(3).standard_normal((1003, 4)).astype(np.float32)
+    t = np.arange(1003) * 0.01
     for spb in (1, 2, 7, 64, 2000):
-        mins, maxs = minmax(values, spb)
+        buckets = bucketize(t, values, spb, origin=1.0)
         want_min, want_max = brute_minmax(values, spb)
-        np.testing.assert_array_equal(mins, want_min)
-        np.testing.assert_array_equal(maxs, want_max)
+        np.testing.assert_array_equal(buckets.mins, want_min)
+        np.testing.assert_array_equal(buckets.maxs, want_max)
+        np.testing.assert_array_equal(buckets.lasts, values[[min(i + spb, 1003) - 1
+                                                             for i in range(0, 1003, spb)]])
+        assert buckets.x[0] == (t[0] + t[min(spb, 1003) - 1]) / 2 - 1.0
 
 
-def test_minmax_skips_nan():
+def test_bucketize_skips_nan():
     values = np.array([[1.0], [np.nan], [3.0], [np.nan]], np.float32)
-    mins, maxs = minmax(values, 2)
-    assert mins[:, 0].tolist() == [1.0, 3.0] and maxs[:, 0].tolist() == [1.0, 3.0]
+    buckets = bucketize(np.arange(4.0), values, 2)
+    assert buckets.mins[:, 0].tolist() == [1.0, 3.0] and buckets.maxs[:, 0].tolist() == [1.0, 3.0]
 
 
-def test_bucket_count_stays_between_one_and_two_per_column():
-    for n in (1200, 5000, 600_000, 10 ** 7):
-        spb = samples_per_bucket(n, 1196)
-        assert spb & (spb - 1) == 0
-        assert 1196 <= -(-n // spb) <= 2 * 1196 or spb == 1
+def test_one_bucket_per_pixel_column():
+    assert samples_per_bucket(600_000, 1196) == 502
+    assert samples_per_bucket(100, 1196) == 1
+    assert -(-600_000 // samples_per_bucket(600_000, 1196)) <= 1196
 
 
-def test_packing_interleaves_min_and_max_per_column():
-    x = np.array([0.0, 1.0])
-    mins = np.array([[1.0, 10.0], [2.0, 20.0]])
-    maxs = np.array([[5.0, 50.0], [6.0, 60.0]])
-    verts = pack_minmax(x, mins, maxs)
-    assert verts.dtype == np.float32 and verts.shape == (2, 4, 2)
-    assert verts[1].tolist() == [[0, 10], [0, 50], [1, 20], [1, 60]]
+def test_columns_join_the_previous_bucket_and_reach_half_a_line_width_further():
+    buckets = Buckets(x=np.array([0.0, 1.0, 2.0]),
+                      mins=np.array([[0.0], [5.0], [5.0]], np.float32),
+                      maxs=np.array([[1.0], [6.0], [5.0]], np.float32),
+                      lasts=np.array([[1.0], [5.5], [5.0]], np.float32))
+    verts = pack_columns(buckets, np.array([0.25], np.float32))
+    assert verts.dtype == np.float32 and verts.shape == (1, 6, 2)
+    # bucket 1 reaches down to bucket 0's last sample (1.0), so the trace is connected;
+    # the flat bucket 2 (5..5, with 5.5 before it) still has a height
+    assert verts[0].tolist() == [[0, -0.25], [0, 1.25], [1, 0.75], [1, 6.25], [2, 4.75],
+                                 [2, 5.75]]
     every = pack_every(np.arange(3.0), np.arange(6.0).reshape(3, 2))
     assert every.shape == (2, 3, 2) and every[1, :, 1].tolist() == [1, 3, 5]
 
@@ -72,10 +80,9 @@ def _filled_history(n: int, channels: int, capacity: int, seed: int = 0) -> Hist
 @settings(max_examples=40, deadline=None)
 @given(steps=st.lists(st.tuples(st.integers(0, 300), st.integers(50, 900)), min_size=1,
                       max_size=12),
-       spb_exp=st.integers(0, 5))
-def test_cached_buckets_equal_a_fresh_computation(steps, spb_exp):
+       spb=st.integers(1, 40))
+def test_cached_buckets_equal_a_fresh_computation(steps, spb):
     """A rolling window updated frame by frame gives exactly the buckets computed afresh."""
-    spb = 1 << spb_exp
     rng = np.random.default_rng(7)
     history = History(2, 1500)
     cache = BucketCache()
@@ -89,11 +96,11 @@ def test_cached_buckets_equal_a_fresh_computation(steps, spb_exp):
             continue
         i1 = history.end
         i0 = max(history.start, i1 - window)
-        x, mins, maxs = cache.update(history, i0, i1, spb)
-        fresh_x, fresh_min, fresh_max = BucketCache().update(history, i0, i1, spb)
-        np.testing.assert_array_equal(mins, fresh_min)
-        np.testing.assert_array_equal(maxs, fresh_max)
-        np.testing.assert_array_equal(x, fresh_x)
+        got = cache.update(history, i0, i1, spb)
+        fresh = BucketCache().update(history, i0, i1, spb)
+        for field in ("x", "mins", "maxs", "lasts"):
+            np.testing.assert_array_equal(getattr(got, field), getattr(fresh, field))
+        mins, maxs = got.mins, got.maxs
         # and right: the extremes are those of the samples from i0's bucket start to i1
         _, vals = history.slice((i0 // spb) * spb, i1)
         assert mins.min(axis=0).tolist() == vals.min(axis=0).tolist()

@@ -142,8 +142,11 @@ def test_min_max_decimation_draws_the_same_envelope_as_every_sample(headless):
         top_b = np.array([np.nonzero(b[:, c])[0].min() for c in cols])
         bottom_a = np.array([np.nonzero(a[:, c])[0].max() for c in cols])
         bottom_b = np.array([np.nonzero(b[:, c])[0].max() for c in cols])
-        assert np.mean(np.abs(top_a - top_b) <= 2) > 0.98
-        assert np.mean(np.abs(bottom_a - bottom_b) <= 2) > 0.98
+        for a_edge, b_edge in ((top_a, top_b), (bottom_a, bottom_b)):
+            # bucket edges drift against pixel columns by under a pixel per bucket
+            assert np.mean(np.abs(a_edge - b_edge) <= 2) > 0.94
+            assert np.mean(np.abs(a_edge - b_edge)) < 1.0
+            assert abs(np.mean(a_edge - b_edge)) < 0.5     # no bias up or down
         assert abs(int(top_a.min()) - int(top_b.min())) <= 2   # the highest spike is kept
 
 
