@@ -16,6 +16,9 @@ from filters.spec import METHODS
 
 # The digital response may differ from the analog one by this much at the cutoff (dB).
 MISMATCH_WARN_DB = 1.0
+# zoh sections that differ from the exact step-invariant filter by more than this
+# fraction of the step response's peak are warned about.
+ZOH_ERROR_WARN = 1e-6
 # Forward Euler is warned about when T exceeds this fraction of the largest stable T.
 EULER_WARN_FRACTION = 0.8
 
@@ -142,6 +145,11 @@ def design_analog(kind: str, params: dict[str, object], rate_hz: float) -> Stage
             f"method = {method!r} puts a pole on or outside the unit circle (|pole| = "
             f"{radius:.6f}) at {fmt(rate_hz)} Hz sampling; use tustin or a higher rate")
     sos = digital.sos()
+    if digital.sos_error > ZOH_ERROR_WARN:
+        warnings.append(
+            f"the zoh sections follow the exact step-invariant filter only to "
+            f"{100 * digital.sos_error:.2g} % of its peak (zeros crowd near z = 1 at this "
+            f"order and rate); use tustin-prewarp or a lower order")
     diff_db, at_hz = _mismatch_db(proto, sos, rate_hz)
     if abs(diff_db) > MISMATCH_WARN_DB:
         remedy = "tustin-prewarp or a higher rate"

@@ -28,6 +28,7 @@ every method against cont2discrete on prototypes small enough for its tf path.
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -44,12 +45,16 @@ class DigitalZpk:
     """H(z) = k prod(z - zeros) / prod(z - poles); fewer zeros than poles means a delay.
 
     zeros, poles: complex arrays; k: float; sample_time_s: T in seconds.
+    sos_error:    largest step-response difference between sos() and the exact
+                  discretization, relative to the response's peak (zoh only, where the
+                  zeros are computed; 0.0 for the methods that map roots exactly).
     """
 
     zeros: np.ndarray
     poles: np.ndarray
     k: float
     sample_time_s: float
+    sos_error: float = 0.0
 
     def sos(self) -> np.ndarray:
         """(m, 6) float64 second-order sections, scipy layout [b0 b1 b2 1 a1 a2]."""
@@ -155,7 +160,9 @@ def _cascade_state_space(proto: AnalogPrototype):
             d_scale = num[0] / den[0] if len(num) else 0.0
             c_vec, d = c_vec * d_scale, d * d_scale
             continue
-        a2, b2, c2, d2 = signal.tf2ss(num, den)
+        with warnings.catch_warnings():  # tiny gains of sample-time units are not an error
+            warnings.simplefilter("ignore", signal.BadCoefficients)
+            a2, b2, c2, d2 = signal.tf2ss(num, den)
         n1, n2 = a_mat.shape[0], a2.shape[0]
         a_new = np.zeros((n1 + n2, n1 + n2))
         a_new[:n1, :n1] = a_mat
@@ -175,7 +182,9 @@ def _zoh(proto: AnalogPrototype, t: float) -> DigitalZpk:
     of the system pencil [[Ad, Bd], [C, D]] - z [[I, 0], [0, 0]] (n - 1 of them for a
     strictly proper prototype, n otherwise); the gain follows from H(z0) = C (z0 I - Ad)^-1 Bd + D
     at a point z0 away from poles and zeros. This avoids the degree-20 polynomials
-    that scipy's ss2tf would form.
+    that scipy's ss2tf would form. Zeros that crowd around z = 1 (a narrow low band-pass
+    of high order) are ill-conditioned in any double-precision state space, so the
+    sections are checked against the exact state-space step response (sos_error).
     """
     from scipy import linalg, signal
 
@@ -200,7 +209,23 @@ def _zoh(proto: AnalogPrototype, t: float) -> DigitalZpk:
     at = 1.3 + 1.1j  # any point off the unit circle and away from the roots
     value = complex((cd @ np.linalg.solve(at * np.eye(n) - ad, bd) + dd)[0, 0])
     k = value / _unit_gain_response(zeros, poles, at)
-    return DigitalZpk(zeros, poles, float(k.real), t)
+    digital = DigitalZpk(zeros, poles, float(k.real), t)
+    return replace(digital, sos_error=_step_mismatch(digital.sos(), ad, bd, cd, dd))
+
+
+def _step_mismatch(sos: np.ndarray, ad, bd, cd, dd, samples: int = 1024) -> float:
+    """Largest |sosfilt step - state-space step| over `samples`, relative to the peak."""
+    from scipy import signal
+
+    x = np.zeros(ad.shape[0])
+    exact = np.empty(samples)
+    b, c, d = bd[:, 0], cd[0], dd[0, 0]
+    for i in range(samples):
+        exact[i] = c @ x + d
+        x = ad @ x + b
+    ours = signal.sosfilt(sos, np.ones(samples))
+    peak = float(np.abs(exact).max())
+    return float(np.abs(ours - exact).max() / peak) if peak > 0 else 0.0
 
 
 def _conjugate_clean(roots: np.ndarray) -> np.ndarray:

@@ -233,3 +233,11 @@ def test_any_pole_on_or_outside_the_unit_circle_is_refused(monkeypatch):
     with pytest.raises(ValueError, match="method = 'zoh' puts a pole on or outside the unit "
                                          "circle .*use tustin or a higher rate"):
         design("rc-lowpass", cutoff_hz=5.0, method="zoh")
+
+
+def test_zoh_inaccuracy_is_warned():
+    d = design("butterworth", order=10, band="bandpass", low_hz=1.0, high_hz=3.0, method="zoh")
+    assert any("zoh sections follow the exact step-invariant filter only to" in w
+               for w in d.warnings)
+    assert not design("butterworth", order=10, band="bandpass", low_hz=8.0, high_hz=30.0,
+                      method="zoh").warnings

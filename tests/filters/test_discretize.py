@@ -182,3 +182,18 @@ def test_every_method_is_stable_for_a_stable_order_10_design(method):
 def test_unknown_method_is_refused():
     with pytest.raises(ValueError, match="method = 'impulse'"):
         discretize(P.rc("lowpass", 5.0), T, "impulse")
+
+
+def test_zoh_reports_how_far_its_sections_are_from_the_exact_filter():
+    # A narrow, low order-10 band-pass puts ten ZOH zeros within 1e-4 of z = 1, beyond
+    # what double precision resolves; sos_error must say so, measured against the
+    # residue formula of the analog step response (step invariance).
+    narrow = P.band_design("butterworth", "bandpass", 10, (1.0, 3.0))
+    d = discretize(narrow, T, "zoh")
+    n = np.arange(1024)
+    step = analog_step(narrow, n * T)
+    actual = np.abs(signal.sosfilt(d.sos(), np.ones(n.size)) - step).max() / np.abs(step).max()
+    assert d.sos_error > 1e-6
+    assert d.sos_error == pytest.approx(actual, rel=1e-3)
+    wide = discretize(P.band_design("butterworth", "bandpass", 10, (8.0, 30.0)), T, "zoh")
+    assert wide.sos_error < 1e-9
