@@ -32,7 +32,7 @@ def sim_layout(channels: int) -> tuple[str, list[str]]:
 
 
 def encode_samples(values: np.ndarray, counters: np.ndarray, t_us: np.ndarray,
-                   framing: str, crc: str) -> bytes:
+                   framing: str, crc: str, flip: np.ndarray | None = None) -> bytes:
     """Frames for n samples, concatenated as the board would send them.
 
     values:   (n, k) float64, sent as float32.
@@ -40,6 +40,9 @@ def encode_samples(values: np.ndarray, counters: np.ndarray, t_us: np.ndarray,
     t_us:     (n,) int device time in microseconds, sent modulo 2**32.
     framing:  "cobs", "slip" or "sync"; crc: "none", "crc16-ccitt",
               "crc16-modbus" or "crc32".
+    flip:     optional (n,) bool: these frames get one payload bit flipped after
+              the CRC is computed, as a bit error on the line would (the CRC
+              catches it; without a CRC the wrong value goes through).
     """
     if framing not in _ENCODERS:
         raise ValueError(f"framing '{framing}' is not one of {', '.join(_ENCODERS)}")
@@ -57,9 +60,15 @@ def encode_samples(values: np.ndarray, counters: np.ndarray, t_us: np.ndarray,
     size = record.itemsize
     encode = _ENCODERS[framing]
     out = []
-    for start in range(0, n * size, size):
+    flipped = set(np.flatnonzero(flip).tolist()) if flip is not None else ()
+    for index, start in enumerate(range(0, n * size, size)):
         payload = raw[start:start + size]
         if algorithm is not None:
             payload = algorithm.append(payload, "little")
+        if index in flipped:
+            bit = (index * 7919) % (8 * size)           # spread over the payload
+            damaged = bytearray(payload)
+            damaged[bit // 8] ^= 1 << (bit % 8)
+            payload = bytes(damaged)
         out.append(encode(payload))
     return b"".join(out)

@@ -10,7 +10,8 @@ URL options (all optional), e.g. `sim://?rate=250&seed=1&channels=3`:
   seq=0|1          add a sequence counter column `seq`, default 0 (binary: always)
   clock=0|1        add a device time column `t_s` in seconds, default 0 (binary: always, us)
   pace=0|1         1 paces samples in real time (default); 0 floods as fast as read
-  glitch=P         probability per line of a corrupted line (bad-frame practice), default 0
+  glitch=P         probability per line or binary frame of a corruption (bad-frame
+                   practice: a broken line, or a flipped bit the CRC catches), default 0
   drop=P           probability per sample that the board loses it (counter gaps), default 0
 
 Writes to the port are accepted and ignored, as a board without a command
@@ -196,7 +197,8 @@ class Serial(SerialBase):
             from monitor.sim.binary import encode_samples
 
             t_us = (index * (1e6 / opts.rate_hz)).astype("int64")
-            self._buffer += encode_samples(values, index, t_us, opts.format, opts.crc)
+            flip = self._rng_glitch.random(len(index)) < opts.glitch if opts.glitch else None
+            self._buffer += encode_samples(values, index, t_us, opts.format, opts.crc, flip)
 
     def _text_lines(self, values, index) -> bytes:
         opts = self._options

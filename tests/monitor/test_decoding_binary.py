@@ -149,3 +149,21 @@ def test_bench_part_runs_quick_and_decodes_every_frame():
     assert set(metrics) >= {"binary_decode_mb_per_s", "binary_reference_mb_per_s",
                             "binary_ratio", "binary_ok"}
     assert metrics["binary_decode_mb_per_s"] > 0 and metrics["binary_ratio"] > 0
+
+
+@pytest.mark.parametrize("framing", ["cobs", "slip", "sync"])
+def test_sim_bit_errors_are_caught_by_the_crc_and_seen_as_drops(framing):
+    n = 400
+    flip = np.zeros(n, dtype=bool)
+    flip[[17, 18, 200, 399 - 5]] = True
+    values = np.linspace(0.0, 1.0, 3 * n).reshape(n, 3)
+    wire = encode_samples(values, np.arange(n), np.arange(n) * 4000, framing, "crc16-ccitt",
+                          flip)
+    layout, fields = sim_layout(3)
+    decoder = BinaryDecoder(layout, fields, crc="crc16-ccitt", counter_field="seq")
+    framer = make_framer(framing, frame_length=decoder.frame_size, check=decoder.crc_ok)
+    block = decoder.decode(framer.feed(wire), 0.0)
+    assert len(block) == n - 4
+    np.testing.assert_array_equal(block.values, values[~flip].astype(np.float32))
+    assert framer.bad.count + decoder.bad.count == 4
+    assert decoder.dropped == 4
