@@ -160,7 +160,8 @@ def test_sim_bit_errors_are_caught_by_the_crc_and_seen_as_drops(framing):
     wire = encode_samples(values, np.arange(n), np.arange(n) * 4000, framing, "crc16-ccitt",
                           flip)
     layout, fields = sim_layout(3)
-    decoder = BinaryDecoder(layout, fields, crc="crc16-ccitt", counter_field="seq")
+    decoder = BinaryDecoder(layout, fields, crc="crc16-ccitt", counter_field="seq",
+                            time_field="t_us", time_unit="us")
     framer = make_framer(framing, frame_length=decoder.frame_size, check=decoder.crc_ok)
     block = decoder.decode(framer.feed(wire), 0.0)
     assert len(block) == n - 4
