@@ -365,6 +365,12 @@ class Recording:
     def _segment(self, lines: list[str], row: int, keep_text: bool, fresh: bool
                  ) -> list[Segment]:
         table, good = self._parse(lines)
+        if self._t_idx is not None:
+            finite = np.isfinite(table[:, self._t_idx])
+            if not finite.all():            # a row without a usable time is a bad row
+                kept = np.flatnonzero(finite)
+                good = kept.tolist() if good is None else [good[i] for i in kept]
+                table = table[finite]
         if good is not None:
             if fresh:
                 self.bad_rows += len(lines) - len(good)

@@ -93,6 +93,15 @@ def test_bad_rows_are_counted_and_skipped(tmp_path):
     assert rec.last_bad_row == bad[-1].strip()
 
 
+def test_rows_without_a_finite_time_are_bad(tmp_path):
+    path = tmp_path / "logger.csv"
+    path.write_text("time,load\n0,1\nnan,2\n0.02,3\ninf,4\n0.04,5\n")
+    rec = read_recording(path, chunk_rows=2)
+    t, values = table_of(rec)
+    assert t.tolist() == [0.0, 0.02, 0.04] and values[:, 0].tolist() == [1, 3, 5]
+    assert rec.bad_rows == 2 and rec.last_bad_row == "inf,4"
+
+
 def test_torn_last_line_of_our_recording_is_ignored_and_reported(tmp_path):
     path = tmp_path / "rec.csv"
     values = weigh_station(20)
