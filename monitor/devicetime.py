@@ -101,7 +101,7 @@ class DeviceClock:
         typical = self._median_step(steps[~backwards])
         for index in np.flatnonzero(backwards):
             self.resets += 1
-            self._gaps.append(f"device clock jumped back to {raw[index]:.0f} {self.unit} "
+            self._gaps.append(f"device clock jumped back to {raw[index]:g} {self.unit} "
                               "(board reset?)")
             steps[index] = typical
         return steps
