@@ -90,6 +90,8 @@ def header(plan: ExportPlan) -> str:
         lines += ["", f"/* channel {ch.name}{scale}: "
                   + (", ".join(p.label for p in ch.plans) or "no stages (passes through)")
                   + " */", "typedef struct {", "    int started;"]
+        if not plan.fixed:
+            lines.append("    PFX_sample last;  /* last finite input */")
         lines += [m for j, p in enumerate(ch.plans) if (m := _member(p, j, "PFX_sample",
                                                                     plan.fixed))]
         lines += [f"}} PFX_{ch.ident}_chain;", "",
@@ -403,13 +405,21 @@ def source(plan: ExportPlan) -> str:
             first += [f"    /* {p.label}, start {p.start} */"]
             first += [f"    {prime}"] if prime else []
             first += [f"    {step}"]
+        stateless = all(p.form == "gain" for p in ch.plans)
+        missing = [] if plan.fixed else [
+            "    if (!(x - x == 0)) {  /* NaN or infinity: a missing sample, as on the host: */",
+            "        if (c->started)   /* the stages see the last finite input instead */",
+            f"            (void){pfx}_run(c, c->last);",
+            "        return x;", "    }", "    c->last = x;"]
         parts.append("\n".join([
             f"static PFX_sample {pfx}_first({pfx}_chain *c, PFX_sample v)", "{",
             *first, "    c->started = 1;", "    return v;", "}", "",
-            f"PFX_sample {pfx}_step({pfx}_chain *c, PFX_sample x)", "{",
-            "    PFX_sample v = x;",
+            f"static inline PFX_sample {pfx}_run({pfx}_chain *c, PFX_sample v)", "{",
+            *(["    (void)c;"] if stateless else []), *[f"    {step}" for _, step in steps],
+            "    return v;", "}", "",
+            f"PFX_sample {pfx}_step({pfx}_chain *c, PFX_sample x)", "{", *missing,
             "    if (!c->started)", f"        return {pfx}_first(c, x);",
-            *[f"    {step}" for _, step in steps], "    return v;", "}", "",
+            f"    return {pfx}_run(c, x);", "}", "",
             f"void {pfx}_reset({pfx}_chain *c)", "{", "    c->started = 0;", "}", "",
             f"void {pfx}_init({pfx}_chain *c)", "{",
             "    /* the first step primes every state field, so marking is enough */",

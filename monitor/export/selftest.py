@@ -2,9 +2,10 @@
 
 Each input row holds one value per channel, in the plan's channel order (floats for
 float targets, Q integers for Q15/Q31); each output row holds the filtered values
-(`%.9g` for float, `%.17g` for double, integers for fixed point). Blank lines and lines
-that do not start with a number (a header row) are skipped; a malformed row stops the
-program with a message naming the line on stderr and exit status 1.
+(`%.9g` for float, `%.17g` for double, integers for fixed point). Blank lines and a
+first line that does not start with a number (a header row) are skipped; a malformed row
+stops the program with a message naming the line on stderr and exit status 1. Float
+targets accept nan and inf (a missing sample).
 """
 
 from __future__ import annotations
@@ -16,7 +17,6 @@ _MAIN = """\
  * input value(s) ({columns}) on stdin, prints the filtered rows on stdout. */
 #include <stdio.h>
 #include <stdlib.h>
-#include <ctype.h>
 #include <errno.h>
 #include "PFX.h"
 
@@ -43,10 +43,12 @@ int main(void)
         row++;
         while (*p == ' ' || *p == '\\t')
             p++;
-        if (!(isdigit((unsigned char)*p) || *p == '-' || *p == '+' || *p == '.'))
+        if (*p == '\\n' || *p == '\\r' || *p == '\\0')
             continue;
         for (k = 0; k < COLUMNS; k++) {{
             if (parse_value(&p, &in[k]) != 0) {{
+                if (row == 1 && k == 0)
+                    break;  /* a header row */
                 fprintf(stderr, "line %ld: value %d is not a {what}\\n", row, k + 1);
                 return 1;
             }}
@@ -61,6 +63,8 @@ int main(void)
                 p++;
             }}
         }}
+        if (k < COLUMNS)
+            continue;
         if (*p != '\\0' && *p != '\\n' && *p != '\\r') {{
             fprintf(stderr, "line %ld: expected %d comma-separated values\\n", row, COLUMNS);
             return 1;

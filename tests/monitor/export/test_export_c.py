@@ -322,3 +322,26 @@ def test_selftest_rejects_bad_rows_with_the_line_number(export_build):
     bad = subprocess.run([str(fl.selftest)], input="1.5\n2,x\n", capture_output=True,
                          text=True, timeout=30)
     assert bad.returncode == 1 and "line 2" in bad.stderr
+
+
+def test_missing_samples_are_handled_as_on_the_host(export_build):
+    chain = """
+    [[stage]]
+    kind = "median"
+    window = 3
+    [[stage]]
+    kind = "butterworth"
+    order = 2
+    cutoff_hz = 15.0
+    """
+    built = export_build(chain, "c-float")
+    x = 2.0 + np.sin(np.arange(300) * 0.05)
+    x[[0, 1, 40, 41, 42, 200]] = [np.nan, np.inf, np.nan, -np.inf, np.nan, np.nan]
+    x = x.astype(np.float32).astype(np.float64)
+    got = built.run(x[:, None])[:, 0]
+    # the Python chain: non-finite samples pass through, the stages see the last finite one
+    want = ChainSet(built.spec, ["signal"], 250.0).process(x[:, None])[:, 0]
+    bad = ~np.isfinite(x)
+    np.testing.assert_array_equal(got[bad], x[bad])      # NaN and inf come out as they went in
+    np.testing.assert_array_equal(want[bad], x[bad])
+    assert np.max(np.abs(got[~bad] - want[~bad])) < 1e-5 * np.max(np.abs(want[~bad]))
