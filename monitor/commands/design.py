@@ -222,6 +222,9 @@ def _text(path: str, rate: float, origin: str, at: float | None, spec: Any, stag
         out.append(f"stage {report.index + 1}: {d.kind} ({'; '.join(flags)})")
         out += _wrapped("  ", _derived_line(d.derived))
         out += _coefficient_lines(report)
+        if d.analog is not None and len(d.analog[1]) <= 3:  # first and second order: H(s)
+            b, a = (", ".join(f"{v:.6g}" for v in poly) for poly in d.analog)
+            out += _wrapped("  analog H(s): ", f"b = [{b}], a = [{a}] (descending powers of s)")
         out += _table_lines(report.costs, d.analog_zpk is not None)
         out += _cost_lines(report.costs)
         for warning in d.warnings:

@@ -6,6 +6,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import signal
 
 from filters.design import StageDesign, design_stage
@@ -241,3 +243,29 @@ def test_zoh_inaccuracy_is_warned():
                for w in d.warnings)
     assert not design("butterworth", order=10, band="bandpass", low_hz=8.0, high_hz=30.0,
                       method="zoh").warnings
+
+
+@settings(max_examples=60, deadline=None)
+@given(kind=st.sampled_from(["rc-lowpass", "rc-highpass", "rlc-bandpass", "rlc-notch",
+                             "second-order-lowpass", "butterworth", "bessel", "chebyshev1"]),
+       method=st.sampled_from(["backward-euler", "tustin", "tustin-prewarp", "zoh", "matched"]),
+       fraction=st.floats(0.001, 0.45), q=st.floats(0.3, 20.0), order=st.integers(1, 10))
+def test_stable_prototypes_give_stable_finite_designs(kind, method, fraction, q, order):
+    # Every method but forward Euler maps the left half-plane inside the unit circle
+    # (common practice), so any valid design must come out stable and finite.
+    f = fraction * RATE
+    params: dict[str, object] = {"method": method}
+    if kind in ("rlc-bandpass", "rlc-notch"):
+        params.update(centre_hz=f, q=q)
+    elif kind == "second-order-lowpass":
+        params.update(cutoff_hz=f, q=q)
+    elif kind in ("butterworth", "bessel", "chebyshev1"):
+        params.update(order=order, cutoff_hz=f)
+        if kind == "chebyshev1":
+            params["ripple_db"] = 1.0
+    else:
+        params["cutoff_hz"] = f
+    d = design_stage(StageSpec(kind, params), RATE)
+    assert np.all(np.isfinite(d.sos))
+    radii = [np.abs(np.roots(row[3:])) for row in d.sos]
+    assert max(float(r.max(initial=0.0)) for r in radii) < 1.0
