@@ -52,7 +52,10 @@ def _scaling(plan: ExportPlan) -> list[str]:
                 "of transposed direct form II biquads (coefficients b0 b1 b2 a1 a2 as "
                 "designed, a0 = 1). Moving averages keep a running sum over a circular "
                 "buffer, refreshed at every lap so rounding does not accumulate. Medians "
-                "insert each sample into a sorted window (no heap, no sort call).", ""]
+                "insert each sample into a sorted window (no heap, no sort call). A NaN or "
+                "infinite input counts as a missing sample, as on the host: it passes "
+                "through to the output and the stages see the last finite input instead "
+                "(do not build with -ffast-math, which removes that check).", ""]
     q = plan.target[2:].upper()
     f, acc = (15, 32) if q == "Q15" else (31, 64)
     lines = ["## Q format and scaling", "",
