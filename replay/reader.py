@@ -175,58 +175,13 @@ class Recording:
     # -- header ----------------------------------------------------------------
 
     def _setup_columns(self, time_column: str | None) -> None:
+        """Which parsed column is time, which are channels, device time and counter."""
         h = self.header
         cols = list(h.columns)
         if h.format_version:
-            if "t_host" not in cols:
-                raise RecordingError(f"{self.path} is a tunetrace recording without a "
-                                     "t_host column; its header row is damaged.")
-            h.time_column = "t_host"
-            h.filtered_columns = tuple(c for c in cols if c.endswith("_filtered")
-                                       and c[: -len("_filtered")] in cols)
-            special = {"t_host", h.device_time_column, h.counter_column, *h.filtered_columns}
-            channels = [c for c in cols if c not in special]
-            units = dict(h.channels_units)
-            self._usecols = None
-            self._quote = None
-            self._width = len(cols)
-            self._t_idx = cols.index("t_host")
+            channels, units = self._setup_ours(cols)
         else:
-            numeric = self._numeric_columns()
-            if not numeric:
-                raise RecordingError(f"{self.path}: no column under the header row holds "
-                                     "numbers; give a CSV file with numeric columns.")
-            names = [cols[i] for i in numeric]
-            if time_column is not None:
-                if time_column not in cols:
-                    raise RecordingError(f"--time-column {time_column!r} is not a column of "
-                                         f"{self.path}; its columns are {', '.join(cols)}.")
-                if time_column not in names:
-                    raise RecordingError(f"--time-column {time_column!r} does not hold "
-                                         "numbers; name a column of seconds or give --rate HZ.")
-                h.time_scale = time_scale_of(time_column) or 1.0
-                h.time_column = time_column
-            else:
-                for name in names:
-                    scale = time_scale_of(name)
-                    if scale is not None:
-                        h.time_column, h.time_scale = name, scale
-                        break
-            if h.time_column is None and self.rate_override is None:
-                raise RecordingError(f"{self.path} has no time column (t, time, t_s, "
-                                     "timestamp); name one with --time-column NAME or give "
-                                     "the sample rate with --rate HZ.")
-            h.ignored_columns = tuple(c for i, c in enumerate(cols) if i not in numeric)
-            self._usecols = numeric if h.ignored_columns else None
-            self._quote = '"'
-            self._width = len(numeric)
-            channels = [n for n in names if n != h.time_column]
-            if not channels:
-                raise RecordingError(f"{self.path} holds only a time column; it needs at "
-                                     "least one column of readings.")
-            self._t_idx = names.index(h.time_column) if h.time_column else None
-            h.channels_units = tuple(split_unit(n) for n in channels)
-            units = {n: split_unit(n)[1] for n in channels}
+            channels, units = self._setup_plain(cols, time_column)
         position = {c: i for i, c in enumerate(cols if self._usecols is None
                                                  else [cols[i] for i in self._usecols])}
         self._value_idx = [position[c] for c in channels]
@@ -239,6 +194,65 @@ class Recording:
             time_column=h.device_time_column if self._tdev_idx is not None else None,
             counter_column=h.counter_column if self._counter_idx is not None else None,
         )
+
+    def _setup_ours(self, cols: list[str]) -> tuple[list[str], dict[str, str]]:
+        """A tunetrace recording: t_host, device time, counter, channels, filtered columns."""
+        h = self.header
+        if "t_host" not in cols:
+            raise RecordingError(f"{self.path} is a tunetrace recording without a "
+                                 "t_host column; its header row is damaged.")
+        h.time_column = "t_host"
+        h.filtered_columns = tuple(c for c in cols if c.endswith("_filtered")
+                                   and c[: -len("_filtered")] in cols)
+        special = {"t_host", h.device_time_column, h.counter_column, *h.filtered_columns}
+        channels = [c for c in cols if c not in special]
+        units = dict(h.channels_units)
+        self._usecols = None
+        self._quote = None
+        self._width = len(cols)
+        self._t_idx = cols.index("t_host")
+        return channels, units
+
+    def _setup_plain(self, cols: list[str], time_column: str | None
+                     ) -> tuple[list[str], dict[str, str]]:
+        """Plain CSV: numeric columns are channels, one of them (or --rate) gives time."""
+        h = self.header
+        numeric = self._numeric_columns()
+        if not numeric:
+            raise RecordingError(f"{self.path}: no column under the header row holds "
+                                 "numbers; give a CSV file with numeric columns.")
+        names = [cols[i] for i in numeric]
+        if time_column is not None:
+            if time_column not in cols:
+                raise RecordingError(f"--time-column {time_column!r} is not a column of "
+                                     f"{self.path}; its columns are {', '.join(cols)}.")
+            if time_column not in names:
+                raise RecordingError(f"--time-column {time_column!r} does not hold "
+                                     "numbers; name a column of seconds or give --rate HZ.")
+            h.time_scale = time_scale_of(time_column) or 1.0
+            h.time_column = time_column
+        else:
+            for name in names:
+                scale = time_scale_of(name)
+                if scale is not None:
+                    h.time_column, h.time_scale = name, scale
+                    break
+        if h.time_column is None and self.rate_override is None:
+            raise RecordingError(f"{self.path} has no time column (t, time, t_s, "
+                                 "timestamp); name one with --time-column NAME or give "
+                                 "the sample rate with --rate HZ.")
+        h.ignored_columns = tuple(c for i, c in enumerate(cols) if i not in numeric)
+        self._usecols = numeric if h.ignored_columns else None
+        self._quote = '"'
+        self._width = len(numeric)
+        channels = [n for n in names if n != h.time_column]
+        if not channels:
+            raise RecordingError(f"{self.path} holds only a time column; it needs at "
+                                 "least one column of readings.")
+        self._t_idx = names.index(h.time_column) if h.time_column else None
+        h.channels_units = tuple(split_unit(n) for n in channels)
+        units = {n: split_unit(n)[1] for n in channels}
+        return channels, units
 
     def _numeric_columns(self) -> list[int]:
         """Indices of plain-CSV columns whose first well-formed data row holds numbers."""
