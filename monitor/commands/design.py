@@ -167,8 +167,9 @@ def _coefficient_lines(report) -> list[str]:
     if d.sos is not None:
         lines = []
         for n, row in enumerate(d.sos, start=1):
-            lines.append(f"  section {n}  b = [{', '.join(f'{v:.12g}' for v in row[:3])}]")
-            lines.append(f"{'':13}a = [{', '.join(f'{v:.12g}' for v in row[3:])}]")
+            prefix = f"  section {n}  "
+            lines.append(f"{prefix}b = [{', '.join(f'{v:.12g}' for v in row[:3])}]")
+            lines.append(f"{' ' * len(prefix)}a = [{', '.join(f'{v:.12g}' for v in row[3:])}]")
         return lines
     if d.fir is not None:
         if len(set(d.fir.tolist())) == 1:
@@ -208,9 +209,8 @@ def _cost_lines(costs) -> list[str]:
 
 def _text(path: str, rate: float, origin: str, at: float | None, spec: Any, stages: list,
           chains: list) -> str:
-    where = (f"at {at:g} Hz (--at)" if at is not None
-             else "at each first cutoff, else 1 Hz")
-    out = [f"chain {path}", f"rate {rate:g} Hz (from {origin}); lag figures {where}", ""]
+    where = f"at {at:g} Hz (--at)" if at is not None else "at each first cutoff, else 1 Hz"
+    out = [f"chain {path}", f"rate {rate:g} Hz (from {origin})", f"lag figures {where}", ""]
     for report in stages:
         stage = spec.stages[report.index]
         d = report.design

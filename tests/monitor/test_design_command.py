@@ -58,7 +58,7 @@ def test_text_output(chain, capsys):
     assert code == 0 and err == ""
     lines = out.splitlines()
     assert all(len(line) <= 80 for line in lines[1:]), [ln for ln in lines if len(ln) > 80]
-    assert "rate 250 Hz (from --rate); lag figures at each first cutoff, else 1 Hz" in out
+    assert "rate 250 Hz (from --rate)\nlag figures at each first cutoff, else 1 Hz" in out
     assert "  at 1 Hz: group delay 8 ms, phase lag 2.9 deg (8 ms)" in out  # median: 2 samples
     assert "  at 8 Hz: group delay 10 ms, phase lag 45.0 deg (15.6 ms)" in out  # RC at cutoff
     assert "stage 1: median (all channels)" in out
