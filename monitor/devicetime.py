@@ -23,6 +23,7 @@ TIME_UNITS: dict[str, float] = {"s": 1.0, "ms": 1e-3, "us": 1e-6}
 TIME_BITS: tuple[int, ...] = (16, 32)
 COUNTER_BITS: tuple[int, ...] = (8, 16, 32)
 _TIMING_WINDOW = 4096
+_TIMING_REFRESH = 256
 
 
 @dataclass(frozen=True)
@@ -67,6 +68,8 @@ class DeviceClock:
         self._last_ticks = 0.0
         self._steps: deque[np.ndarray] = deque()
         self._step_count = 0
+        self._timing: DeviceTiming | None = None
+        self._new_steps = 0
         self._gaps: list[str] = []
 
     def unwrap(self, raw: np.ndarray) -> np.ndarray:
@@ -115,11 +118,18 @@ class DeviceClock:
             return
         self._steps.append(steps.copy())
         self._step_count += steps.size
+        self._new_steps += steps.size
         while self._step_count - self._steps[0].size >= _TIMING_WINDOW:
             self._step_count -= self._steps.popleft().size
 
     def timing(self) -> DeviceTiming | None:
-        """Rate and jitter from the newest intervals; None before two samples."""
+        """Rate and jitter from the newest intervals; None before two samples.
+
+        Recomputed once 256 new intervals have come in (or while fewer than 256
+        are known), so that callers may ask on every read.
+        """
+        if self._timing is not None and self._new_steps < _TIMING_REFRESH:
+            return self._timing
         if not self._steps:
             return None
         steps = np.concatenate(self._steps)[-_TIMING_WINDOW:] * self._scale
@@ -128,8 +138,11 @@ class DeviceClock:
             return None
         median = float(np.median(steps))
         near = steps[(steps >= 0.5 * median) & (steps <= 1.5 * median)]
-        return DeviceTiming(rate_hz=1.0 / median, interval_s=median,
-                            jitter_s=float(np.std(near)), intervals=int(steps.size))
+        timing = DeviceTiming(rate_hz=1.0 / median, interval_s=median,
+                              jitter_s=float(np.std(near)), intervals=int(steps.size))
+        if steps.size >= _TIMING_REFRESH:
+            self._timing, self._new_steps = timing, 0
+        return timing
 
     def take_gaps(self) -> list[str]:
         """Reasons for clock discontinuities since the last call."""
