@@ -174,14 +174,17 @@ class RecordingWriter:
             self._t0_fixed = True
         t_rel = np.asarray(block.t_host, dtype=np.float64) - self._t0
         floats = [np.asarray(block.values, dtype=np.float64)]
-        if self.schema.time_column and block.t_dev is not None:
+        if (self.schema.time_column and block.t_dev is None) or (
+                self.schema.counter_column and block.counter is None):
+            raise ValueError("the block lacks the device time or counter its schema names")
+        if self.schema.time_column:
             floats.insert(0, np.asarray(block.t_dev, dtype=np.float64).reshape(-1, 1))
         if self.with_filtered:
             if filtered is None:
                 raise ValueError("filtered values are required when with_filtered is set")
             floats.append(np.asarray(filtered, dtype=np.float64))
         counter = []
-        if self.schema.counter_column and block.counter is not None:
+        if self.schema.counter_column:
             counter = format_rows(np.asarray(block.counter, dtype=np.int64).reshape(-1, 1))
         text_rows = join_columns(format_seconds(t_rel), counter,
                                  format_rows(np.hstack(floats)))
@@ -229,11 +232,6 @@ class RecordingWriter:
         self._flusher.join(timeout=1.0)
         if error is not None:
             raise error
-
-    @property
-    def seconds(self) -> float:
-        """Seconds since the recording started (monotonic clock)."""
-        return time.monotonic() - self._t0
 
     # -- internals ---------------------------------------------------------------
 

@@ -71,6 +71,8 @@ def test_device_time_counter_and_filtered_columns(tmp_path):
     writer.write_block(block, np.array([[1.25], [2.0]]))
     with pytest.raises(ValueError, match="filtered values are required"):
         writer.write_block(block, None)
+    with pytest.raises(ValueError, match="lacks the device time or counter"):
+        writer.write_block(Block(block.t_host, block.values), block.values)
     writer.close()
     rows = data_lines(path)
     assert rows[0] == "t_host,seq,t_ms,load,load_filtered"
