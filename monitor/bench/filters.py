@@ -10,7 +10,8 @@ The IIR part (notch + Butterworth, 3 sections) is also run alone through
 ChainSet, block by block, and compared with the reference measured in the same
 run on the same data: one scipy.signal.sosfilt call over the whole (n, 8)
 array with the same sections and the same steady start. Both results are
-compared too (they must agree to float rounding).
+compared too (they must agree to float rounding). Each round runs every
+contender in turn, so all see the same machine load; the best of 3 rounds counts.
 
 Target: the block-wise IIR part reaches >= 0.5 of the reference's speed.
 Samples are counted per channel (rows x channels).
@@ -18,13 +19,13 @@ Samples are counted per channel (rows x channels).
 
 from __future__ import annotations
 
+import time
 from collections.abc import Callable
 
 import numpy as np
 
 from filters.chainset import ChainSet
 from filters.spec import ChainSpec, StageSpec
-from monitor.bench import best_of
 
 TARGET_RATIO = 0.5
 RATE_HZ = 1000.0
@@ -45,16 +46,27 @@ def _weigh_data(n: int) -> np.ndarray:
     return x
 
 
-def _blockwise(spec: ChainSpec, blocks: list[np.ndarray]) -> Callable[[], np.ndarray]:
-    names = [f"ch{i}" for i in range(CHANNELS)]
+def _interleaved(repeats: int, contenders: dict[str, Callable[[], object]]) -> dict[str, float]:
+    """Best wall time (s) of each contender over `repeats` rounds, every round running all
+    contenders in turn, so that each sees the same machine load."""
+    best = dict.fromkeys(contenders, float("inf"))
+    for _ in range(repeats):
+        for name, work in contenders.items():
+            start = time.perf_counter()
+            work()
+            best[name] = min(best[name], time.perf_counter() - start)
+    return best
 
-    def work() -> np.ndarray:
-        chain = ChainSet(spec, names, RATE_HZ)
-        process = chain.process
-        last = None
-        for block in blocks:
-            last = process(block)
-        return last
+
+def _blockwise(spec: ChainSpec, x: np.ndarray, block: int) -> Callable[[], object]:
+    """A fresh ChainSet fed all of x in blocks of `block` samples, one process() each."""
+    names = [f"ch{i}" for i in range(CHANNELS)]
+    blocks = [x[i:i + block] for i in range(0, len(x), block)]
+
+    def work() -> None:
+        process = ChainSet(spec, names, RATE_HZ).process
+        for piece in blocks:
+            process(piece)
 
     return work
 
@@ -70,28 +82,26 @@ def run(quick: bool) -> dict[str, float | int | str | bool]:
     repeats = 1 if quick else 3
     x = _weigh_data(n)
     samples = x.size
-    blocks = [x[i:i + BLOCK] for i in range(0, n, BLOCK)]
     iir = ChainSpec((NOTCH, LOWPASS))
-
     chain = ChainSet(iir, [f"ch{i}" for i in range(CHANNELS)], RATE_HZ)
     sos = np.vstack([design.sos for design in chain.designs])
     zi = sosfilt_zi(sos)[:, :, None] * x[0][None, None, :]
-    reference_s = best_of(repeats, lambda: sosfilt(sos, x, axis=0, zi=zi))
-    block_s = best_of(repeats, _blockwise(iir, blocks))
+    seconds = _interleaved(repeats, {
+        "reference": lambda: sosfilt(sos, x, axis=0, zi=zi),
+        "iir": _blockwise(iir, x, BLOCK),
+        "iir_100": _blockwise(iir, x, 100),
+        "chain": _blockwise(ChainSpec((MEDIAN, NOTCH, LOWPASS)), x, BLOCK),
+    })
 
-    wide = [x[i:i + 100] for i in range(0, n, 100)]
-    wide_s = best_of(repeats, _blockwise(iir, wide))
-    chain_s = best_of(repeats, _blockwise(ChainSpec((MEDIAN, NOTCH, LOWPASS)), blocks))
-
-    filtered = np.vstack([chain.process(block) for block in blocks])
-    reference, _ = sosfilt(sos, x, axis=0, zi=zi)
-    ratio = reference_s / block_s
+    filtered = np.vstack([chain.process(x[i:i + BLOCK]) for i in range(0, n, BLOCK)])
+    expected, _ = sosfilt(sos, x, axis=0, zi=zi)
+    ratio = seconds["reference"] / seconds["iir"]
     return {
-        "filters_iir_block_samples_per_s": samples / block_s,
-        "filters_iir_reference_samples_per_s": samples / reference_s,
+        "filters_iir_block_samples_per_s": samples / seconds["iir"],
+        "filters_iir_reference_samples_per_s": samples / seconds["reference"],
         "filters_iir_ratio": ratio,
         "filters_iir_ratio_ok": bool(ratio >= TARGET_RATIO) if not quick else True,
-        "filters_iir_max_abs_diff": float(np.abs(filtered - reference).max()),
-        "filters_iir_ratio_100": reference_s / wide_s,
-        "filters_chain_samples_per_s": samples / chain_s,
+        "filters_iir_max_abs_diff": float(np.abs(filtered - expected).max()),
+        "filters_iir_ratio_100": seconds["reference"] / seconds["iir_100"],
+        "filters_chain_samples_per_s": samples / seconds["chain"],
     }
