@@ -10,8 +10,13 @@ import time
 from monitor.commands.common import positive_float
 from monitor.errors import UserError
 
+CAUTION = ("Filtering adds lag and can hide faults: before filtered values feed a control "
+           "loop or a safety decision, validate the chain on the real system and follow the "
+           "standards that apply.")
+
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.epilog = CAUTION
     parser.add_argument("file", metavar="FILE",
                         help="a tunetrace recording, or a CSV file with a header row")
     parser.add_argument("--chain", required=True, metavar="CHAIN", help="chain file (TOML)")

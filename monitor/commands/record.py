@@ -30,7 +30,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="stop after S seconds (default: until Ctrl-C or the source ends)")
     parser.add_argument("--force", action="store_true", help="overwrite FILE if it exists")
     parser.add_argument("--with-filtered", action="store_true",
-                        help="also write <channel>_filtered columns from --chain")
+                        help="also write <channel>_filtered columns from --chain (give "
+                             "--rate too: until the rate is known, filtered equals raw)")
     parser.add_argument("--max-bytes", type=positive_float, metavar="N",
                         help="stop cleanly before the file grows beyond N bytes")
     parser.add_argument("--max-seconds", type=positive_float, metavar="S",
