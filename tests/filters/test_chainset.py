@@ -356,3 +356,14 @@ def test_a_channel_without_any_finite_sample_yet_starts_at_its_first_one():
     np.testing.assert_allclose(got[30:, 1], later[:, 1], atol=1e-12 * 30)
     np.testing.assert_allclose(got[:, [0, 2]], REFERENCE["weigh"][:200, [0, 2]],
                                atol=1e-12 * 30)
+
+
+def test_bench_part_runs_quick_and_the_chain_agrees_with_sosfilt():
+    from monitor.bench.filters import run
+
+    metrics = run(quick=True)
+    assert metrics["filters_iir_max_abs_diff"] < 1e-9
+    for key in ("filters_iir_block_samples_per_s", "filters_iir_reference_samples_per_s",
+                "filters_iir_ratio", "filters_iir_ratio_100", "filters_chain_samples_per_s"):
+        assert metrics[key] > 0, key
+    assert metrics["filters_iir_ratio_ok"] is True
