@@ -120,14 +120,20 @@ def _grid(rate_hz: float) -> np.ndarray:
 
 def minus3db_edges_hz(designs: StageDesign | Sequence[StageDesign],
                       rate_hz: float | None = None) -> tuple[float, ...]:
-    """Every frequency where |H| crosses 1/sqrt(2) of its passband (peak) gain, ascending."""
+    """Every frequency where |H| crosses 1/sqrt(2) of its passband gain, ascending.
+
+    The passband gain is the DC gain when the chain passes DC (low-pass, band-stop,
+    notch: a resonant peak does not move the reference), else the peak gain (high-pass,
+    band-pass, DC block).
+    """
     from scipy import optimize
 
     chain = _as_chain(designs)
     fs = _rate(chain, rate_hz)
     grid = _grid(fs)
     mag = np.abs(chain_response(chain, grid, fs))
-    level = mag.max() / math.sqrt(2)
+    passband = mag[0] if mag[0] > 1e-6 * mag.max() else mag.max()
+    level = passband / math.sqrt(2)
     if level == 0 or np.all(np.abs(mag - mag.max()) < 1e-9 * mag.max()):
         return ()
     above = mag >= level

@@ -187,3 +187,14 @@ def test_default_analysis_frequency_and_unsettled_response():
     assert A.default_analysis_hz([], 2.0) == 0.5
     # An EMA whose time constant exceeds the longest simulated response never settles.
     assert A.settling_time_s(design("ema", alpha=1e-7)) == math.inf
+
+
+def test_minus3db_of_a_resonant_lowpass_is_relative_to_dc():
+    # Second-order low-pass |H|^2 = 1 / ((1 - x^2)^2 + x^2/Q^2), x = f/f0 (textbook form);
+    # |H| = 1/sqrt(2) at x^2 = u with u^2 - (2 - 1/Q^2) u - 1 = 0. Sampled fast so that
+    # Tustin's warping is negligible.
+    q, f0, rate = 5.0, 10.0, 20_000.0
+    c = 2 - 1 / q**2
+    x = math.sqrt((c + math.sqrt(c * c + 4)) / 2)
+    d = design_stage(StageSpec("second-order-lowpass", {"cutoff_hz": f0, "q": q}), rate)
+    assert A.minus3db_edges_hz(d) == pytest.approx((x * f0,), rel=1e-4)
