@@ -1,8 +1,9 @@
 """`tunetrace export`: write a chain as firmware C (float, Q15, Q31) with test vectors.
 
 Channels: --channels names them in the order of the self-test's CSV columns; without it
-the channels the chain file names are exported, or, when every stage selects every
-channel, one generic chain `signal` (one state struct per channel on the board).
+the channels the chain file names are exported, plus, when some stage selects every
+channel, the generic chain `signal` for every other channel (one state struct per channel
+on the board).
 Fixed point needs each channel's full scale (--full-scale): the units that map to +-1.0.
 A chain the target cannot hold is refused with the suggested fix unless
 --accept-quantization; a chain whose quantized poles are unstable is always refused.
@@ -38,7 +39,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--double", action="store_true",
                         help="c-float only: double precision instead of single")
     parser.add_argument("--channels", type=channel_list, metavar="NAMES",
-                        help="comma-separated channel names, in the board's column order")
+                        help="comma-separated channel names, in the board's column order "
+                             "(default: those the chain names, plus 'signal' for any other "
+                             "channel when a stage selects every channel)")
     parser.add_argument("--full-scale", metavar="UNITS",
                         help="fixed point: units that map to +-1.0, one value (e.g. 50) or "
                              "per channel (load=50,current=10); for float it sets the "

@@ -72,14 +72,18 @@ def check_prefix(name: str) -> str:
 
 
 def default_channels(spec: ChainSpec) -> list[str]:
-    """Channel names the chain's stages mention, in first-mention order; or the one generic
-    channel when every stage selects every channel (then the chain is the same for any)."""
+    """Channel names the chain's stages mention, in first-mention order, then the generic
+    channel `signal` (the chain of any other channel: the stages that select every channel)
+    when some stage selects every channel or none names one."""
     names: list[str] = []
     for stage in spec.stages:
         for name in stage.channels or ():
             if name not in names:
                 names.append(name)
-    return names or [GENERIC_CHANNEL]
+    if (not names or any(s.channels is None for s in spec.stages)) \
+            and GENERIC_CHANNEL not in names:
+        names.append(GENERIC_CHANNEL)
+    return names
 
 
 def build_plan(spec: ChainSpec, channels: Sequence[str], rate_hz: float, target: str,

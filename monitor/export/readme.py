@@ -149,10 +149,11 @@ def readme_text(plan: ExportPlan, report: QuantizationReport, chain_path: str,
         lines.append(f"- `{ch.name}` -> `{p}_{ch.ident}_step`: {stages or 'no stages'}"
                      + (f"; bypassed, not exported: {', '.join(ch.bypassed)}"
                         if ch.bypassed else ""))
-    if [ch.name for ch in plan.channels] == [GENERIC_CHANNEL]:
-        lines += ["", "Every stage of the chain selects every channel, so this one chain serves "
-                  f"any channel: keep one `{p}_{GENERIC_CHANNEL}_chain` per channel on the "
-                  "board (or export with --channels to name them)."]
+    if any(ch.name == GENERIC_CHANNEL for ch in plan.channels):
+        lines += ["", f"`{GENERIC_CHANNEL}` is the chain of every channel the chain file does "
+                  "not name (the stages that select every channel): keep one "
+                  f"`{p}_{GENERIC_CHANNEL}_chain` per such channel on the board, or export "
+                  "with --channels to name them."]
     lines.append("")
     lines += _api(plan) + _scaling(plan) + _build(plan)
     lines += ["## Quantization report", "", "```", report.format_text(), "```", ""]

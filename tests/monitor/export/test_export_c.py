@@ -345,3 +345,27 @@ def test_missing_samples_are_handled_as_on_the_host(export_build):
     np.testing.assert_array_equal(got[bad], x[bad])      # NaN and inf come out as they went in
     np.testing.assert_array_equal(want[bad], x[bad])
     assert np.max(np.abs(got[~bad] - want[~bad])) < 1e-5 * np.max(np.abs(want[~bad]))
+
+
+@pytest.mark.parametrize("target", ["c-q15", "c-q31"])
+def test_fixed_point_has_no_undefined_behaviour_at_the_extremes(export_build, target):
+    # gcc's undefined-behaviour and address sanitizers: no signed overflow, no bad shift,
+    # no out-of-bounds window access, even for inputs pinned at the ends of the range
+    built = export_build(EVERY_KIND, target, CHANNELS, full_scale=2.0)
+    exe = built.directory / "selftest_sanitized"
+    subprocess.run(["gcc", "-std=c99", "-O1", "-g", "-fsanitize=undefined,address",
+                    "-fno-sanitize-recover=all", "-o", str(exe),
+                    str(built.directory / "weigh_selftest.c"), str(built.directory / "weigh.c")],
+                   check=True, capture_output=True, timeout=120)
+    fmt = q_format(target)
+    rng = np.random.default_rng(9)
+    x = rng.integers(fmt.min_int, fmt.max_int, size=(4000, 3), endpoint=True)
+    ends = rng.random((4000, 3)) < 0.6
+    x[ends] = np.where(rng.random(ends.sum()) < 0.5, fmt.min_int, fmt.max_int)
+    text = "\n".join(",".join(str(v) for v in row) for row in x) + "\n"
+    done = subprocess.run([str(exe)], input=text, capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0 and done.stderr == "", done.stderr[-2000:]
+    got = np.loadtxt(done.stdout.splitlines(), delimiter=",", dtype=np.int64)
+    for k, ch in enumerate(built.plan.channels):
+        model = FixedChainModel(fixed_stages(ch, target)).process(x[:, k])
+        assert np.array_equal(got[:, k], model)

@@ -167,3 +167,13 @@ def test_a_chain_for_every_channel_exports_one_generic_chain(chain, tmp_path, ca
     assert "belt_load_step" in header and "belt_vib_step" in header
     vectors = (tmp_path / "n" / "belt_vectors.csv").read_text().splitlines()
     assert vectors[0] == "load,vib,load_filtered,vib_filtered"
+
+
+def test_a_mixed_chain_adds_the_generic_chain_for_other_channels(chain, tmp_path, capsys):
+    text = WEIGH + '[[stage]]\nkind = "gain"\nscale = 2.0\n'
+    assert export(capsys, chain(text), "--target", "c-float", "-o", tmp_path / "m")[0] == 0
+    header = (tmp_path / "m" / "weigh.h").read_text()
+    assert "weigh_load_step" in header and "weigh_vib_step" in header
+    assert "/* channel signal: stage 4: gain */" in header
+    readme = (tmp_path / "m" / "README.md").read_text()
+    assert "every channel the chain file does not name" in readme
