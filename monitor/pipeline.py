@@ -115,6 +115,7 @@ class PipelineStatus:
     samples overwritten in the ring (old history, not loss); gaps: source gaps (reconnects).
     chain_note says why filtered equals raw while waiting for a rate; chain_error why a
     chain was refused or failed. error: the reader thread stopped on this unexpected error.
+    jitter_s: spread of the device clock's sample intervals (s), when the stream has one.
     """
 
     source_state: str = "connecting"
@@ -140,6 +141,7 @@ class PipelineStatus:
     error: str | None = None
     notice: str | None = None
     warning: str | None = None
+    jitter_s: float | None = None
     commands_dropped: int = 0
 
 
@@ -241,6 +243,12 @@ class FramedSource:
         if self._arrival.settled():
             return (float(self._arrival.estimate()), "estimated")
         return None
+
+    def device_jitter(self) -> float | None:
+        """Jitter of the device clock (s) from the decoder's time column, or None."""
+        clock = getattr(self.decoder, "clock", None)
+        timing = clock.timing() if clock is not None else None
+        return timing.jitter_s if timing is not None else None
 
     def rate_estimate(self) -> float | None:
         """The provisional arrival-rate estimate (Hz) before it settles, for status lines."""
@@ -525,6 +533,7 @@ class Pipeline:
             work.bad, work.last_bad, work.last_bad_reason = bad.count, bad.last, bad.last_reason
         work.dropped = int(getattr(source, "dropped", 0))
         work.warning = getattr(source, "warning", None)
+        work.jitter_s = getattr(source, "device_jitter", lambda: None)()
         if self.ring is not None:
             work.samples_total = self.ring.total
             work.ring_overflow = max(0, self.ring.total - self.ring.capacity)

@@ -107,6 +107,9 @@ def rate_text(status: Any) -> str:
     waiting = status.chain_note is not None and status.rate_origin == "estimated"
     prefix = "~" if status.rate_origin == "estimated" else ""
     origin = "estimating" if waiting else status.rate_origin
+    jitter = getattr(status, "jitter_s", None)
+    if status.rate_origin == "device" and jitter is not None:
+        return f"{status.rate_hz:.5g} Hz device (jitter {jitter * 1e6:.1f} us)"
     return f"{prefix}{status.rate_hz:.5g} Hz {origin}"
 
 

@@ -103,6 +103,7 @@ def test_pty_board_through_cli_options_pipeline_and_recording(pty_board, tmp_pat
     assert status.bad == 1
     assert status.dropped == 4
     assert status.rate_origin == "device" and status.rate_hz == pytest.approx(500.0)
+    assert status.jitter_s == pytest.approx(0.0, abs=1e-9)   # the board's clock steps exactly
     snapshot = pipeline.ring.latest(10_000)
     np.testing.assert_array_equal(snapshot.raw, adc[keep].astype(float))
     assert pipeline.schema.units == ("count", "count")
@@ -155,3 +156,12 @@ def test_time_options_need_the_column_they_describe():
     with pytest.raises(UserError, match="--counter-bits needs --counter-column"):
         build_pipeline(parse("live", "/dev/ttyX", "--framing", "cobs", "--layout", "<H2f",
                              "--fields", "n,a,b", "--counter-bits", "8"), "/dev/ttyX")
+
+
+def test_plain_rate_shows_device_clock_jitter():
+    from monitor.commands.live import rate_text
+    from monitor.pipeline import PipelineStatus
+
+    status = PipelineStatus(rate_hz=250.0, rate_origin="device", jitter_s=12e-6)
+    assert rate_text(status) == "250 Hz device (jitter 12.0 us)"
+    assert rate_text(PipelineStatus(rate_hz=250.0, rate_origin="declared")) == "250 Hz declared"
