@@ -14,6 +14,7 @@ import csv
 import os
 from collections.abc import Iterator
 from dataclasses import dataclass
+from typing import BinaryIO
 
 import numpy as np
 
@@ -31,6 +32,7 @@ __all__ = ["Gap", "Recording", "RecordingError", "RecordingHeader", "Segment",
            "read_recording"]
 
 CHUNK_BYTES = 1 << 20
+MAX_DATA_LINE = 1 << 20       # a longer 'row' is counted bad and skipped
 _SAMPLE_LINES = 50
 
 
@@ -314,6 +316,9 @@ class Recording:
                 cut = data.rfind(b"\n") + 1
                 leftover = data[cut:]
                 if not cut:
+                    if len(leftover) > MAX_DATA_LINE:       # not a CSV row: memory stays bounded
+                        offset = self._skip_line(f, leftover, offset)
+                        leftover = b""
                     continue
                 start, offset = offset, offset + cut
                 fresh = start >= self._scanned_to
@@ -328,6 +333,18 @@ class Recording:
                     self._scanned_to = offset
                     self.rows = row
                 yield from items
+
+    def _skip_line(self, f: BinaryIO, head: bytes, offset: int) -> int:
+        """Count an overlong line as bad and read past its end; returns the next line's offset."""
+        if offset >= self._scanned_to:
+            self.bad_rows += 1
+            self.last_bad_row = head[:200].decode("utf-8", errors="replace")
+        offset += len(head)
+        while True:
+            piece = f.readline(MAX_DATA_LINE)
+            offset += len(piece)
+            if not piece or piece.endswith(b"\n"):
+                return offset
 
     def _tail_line(self, leftover: bytes, row: int, keep_text: bool, start: int
                    ) -> Iterator[Segment | Gap]:

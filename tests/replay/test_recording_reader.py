@@ -102,6 +102,19 @@ def test_rows_without_a_finite_time_are_bad(tmp_path):
     assert rec.bad_rows == 2 and rec.last_bad_row == "inf,4"
 
 
+def test_an_overlong_line_is_one_bad_row_and_memory_stays_bounded(tmp_path):
+    from replay.reader import MAX_DATA_LINE, Recording
+
+    path = tmp_path / "logger.csv"
+    with open(path, "w") as f:
+        f.write("time,load\n0,1\n")
+        f.write("7" * (3 * MAX_DATA_LINE) + "\n")
+        f.write("0.02,3\n")
+    rec = Recording(path, chunk_bytes=4096)
+    t, values = table_of(rec)
+    assert t.tolist() == [0.0, 0.02] and rec.bad_rows == 1
+
+
 def test_torn_last_line_of_our_recording_is_ignored_and_reported(tmp_path):
     path = tmp_path / "rec.csv"
     values = weigh_station(20)
