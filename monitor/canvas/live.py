@@ -149,6 +149,8 @@ class LivePlot:
             state.frozen = not state.frozen
         elif text == "r":
             state.following, state.frozen = True, False
+            if self._plot is not None:
+                self._plot.time.restart_autoscale()
         elif text in ("[", "]"):
             limit = self._max_window_s()
             state.window_s = min(max(state.window_s * (0.5 if text == "[" else 2.0),

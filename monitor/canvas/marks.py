@@ -57,6 +57,12 @@ class Marks:
         """A grid segment from (x0, y0) to (x1, y1), pixels."""
         self._grid.append((x0, y0, x1, y1))
 
+    def frame(self, rect) -> None:
+        """The outline of a plot area (a layout.Rect), in the frame colour."""
+        x0, y0, x1, y1 = rect.x - 1, rect.y - 1, rect.x + rect.w, rect.y + rect.h
+        for segment in ((x0, y0, x1, y0), (x1, y0, x1, y1), (x1, y1, x0, y1), (x0, y1, x0, y0)):
+            self.mark(*segment, palette.FRAME)
+
     def mark(self, x0: float, y0: float, x1: float, y1: float, colour: palette.Color) -> None:
         """A marker segment (cutoff, Nyquist, cursor), drawn over the grid and under the data."""
         self._marks.append((x0, y0, x1, y1))

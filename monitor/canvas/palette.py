@@ -21,8 +21,8 @@ def mix(a: Color, b: Color, amount: float) -> Color:
     return tuple(a[i] + (b[i] - a[i]) * amount for i in range(3)) + (1.0,)  # type: ignore[return-value]
 
 
-GROUND = _hex("#10141b")        # canvas background
-PANEL = _hex("#171d26")         # plot areas
+PANEL = _hex("#161b24")         # the canvas and its plot areas
+FRAME = _hex("#39475a")         # plot area outlines
 GRID = _hex("#263040")          # grid lines
 TEXT = _hex("#a9b6c8")          # tick labels and titles
 READOUT = _hex("#f1e9d2")       # cursor readout and cursor line

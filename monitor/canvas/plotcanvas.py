@@ -16,7 +16,7 @@ from monitor.canvas import palette
 from monitor.canvas.decimate import BucketCache, pack_columns, pack_every, samples_per_bucket
 from monitor.canvas.history import History
 from monitor.canvas.layout import compute_layout
-from monitor.canvas.marks import Marks, flat_2d
+from monitor.canvas.marks import Marks
 from monitor.canvas.response_panel import ResponsePanel, chain_curves, stage_markers
 from monitor.canvas.spectrum_panel import MAX_SEGMENTS, NPERSEG, SpectrumPanel, welch_db
 from monitor.canvas.time_panel import TimePanel
@@ -61,7 +61,7 @@ class PlotCanvas:
         self.rate_hz = float(rate_hz)
         self.title = title
         self.canvas = scene.SceneCanvas(size=size, show=show, title=title, keys=None,
-                                        bgcolor=palette.GROUND, app=app, resizable=False)
+                                        bgcolor=palette.PANEL, app=app, resizable=False)
         self.size = (int(size[0]), int(size[1]))
         self._populate(overlay)
 
@@ -69,7 +69,6 @@ class PlotCanvas:
         """Create the panels' visuals for the current channels and overlay choice."""
         self.layout = compute_layout(self.size, 1 if overlay else len(self.channels))
         self.overlay = overlay
-        self._backgrounds()
         self.time = TimePanel(self.canvas.scene, self.layout.lanes, self.channels, self.units,
                               overlay=overlay)
         self.spectrum = SpectrumPanel(self.canvas.scene, self.layout.spectrum, self.rate_hz)
@@ -98,21 +97,6 @@ class PlotCanvas:
         self.rate_hz = float(rate_hz)
         self.spectrum.set_rate(self.rate_hz)
         self.response.set_rate(self.rate_hz)
-
-    def _backgrounds(self) -> None:
-        from vispy.scene import visuals
-
-        rects = [*self.layout.lanes, self.layout.spectrum, self.layout.magnitude,
-                 self.layout.phase]
-        verts, faces = [], []
-        for i, r in enumerate(rects):
-            verts += [(r.x, r.y), (r.x + r.w, r.y), (r.x + r.w, r.y + r.h), (r.x, r.y + r.h)]
-            faces += [(4 * i, 4 * i + 1, 4 * i + 2), (4 * i, 4 * i + 2, 4 * i + 3)]
-        mesh = visuals.Mesh(vertices=np.array(verts, np.float32),
-                            faces=np.array(faces, np.uint32), color=palette.PANEL,
-                            parent=self.canvas.scene)
-        mesh.order = -3
-        flat_2d(mesh)
 
     # -- data ---------------------------------------------------------------------------
 
@@ -196,6 +180,9 @@ class PlotCanvas:
         """Grid, ticks, titles, markers, status and readout for the data now shown."""
         marks = self.marks
         marks.begin()
+        for rect in (*self.layout.lanes, self.layout.spectrum, self.layout.magnitude,
+                     self.layout.phase):
+            marks.frame(rect)
         self.time.decorate(marks, selected)
         self.spectrum.decorate(marks)
         self.response.decorate(marks)

@@ -17,11 +17,21 @@ from monitor.canvas.area import PlotArea
 from monitor.canvas.layout import Rect
 from monitor.canvas.marks import Marks
 
-PAD = 0.08   # fraction of a lane's value span left free above and below the traces
+PAD = 0.08     # fraction of a lane's value span left free above and below the traces
+SHRINK = 0.6   # autoscale shrinks the range once the data fills less than this of it
 
 
-def autoscale(lo: float, hi: float) -> tuple[float, float]:
-    """A y range showing [lo, hi] with some room; a flat trace gets a unit-wide range."""
+def autoscale(lo: float, hi: float,
+              current: tuple[float, float] | None = None) -> tuple[float, float]:
+    """A y range showing [lo, hi] with some room; a flat trace gets a unit-wide range.
+
+    With the `current` range: keep it while the data fits and fills at least
+    SHRINK of it (so axes do not twitch with every frame's noise; common practice).
+    """
+    if current is not None and np.isfinite(lo) and np.isfinite(hi):
+        c0, c1 = current
+        if c0 <= lo and hi <= c1 and (hi - lo) >= SHRINK * (c1 - c0) * (1 - 2 * PAD):
+            return current
     if not (np.isfinite(lo) and np.isfinite(hi)):
         return -1.0, 1.0
     span = hi - lo
@@ -54,6 +64,11 @@ class TimePanel:
             self.filtered_lines.append(area.line(palette.filtered_colour(k),
                                                  palette.FILTERED_WIDTH))
         self.newest_x = 0.0
+        self._autoscaled: list[tuple[float, float] | None] = [None] * len(self.lanes)
+
+    def restart_autoscale(self) -> None:
+        """Forget the autoscaled ranges (after a zoom, before following again)."""
+        self._autoscaled = [None] * len(self.lanes)
 
     def lane_of(self, channel: int) -> int:
         """Index of the lane that shows `channel`."""
@@ -95,7 +110,8 @@ class TimePanel:
             ks = self.channels_in(lane)
             lo = np.nanmin(extremes[ks, 0]) if ks else np.nan
             hi = np.nanmax(extremes[ks, 1]) if ks else np.nan
-            area.set_range(x0, x1, *autoscale(lo, hi))
+            self._autoscaled[lane] = autoscale(lo, hi, self._autoscaled[lane])
+            area.set_range(x0, x1, *self._autoscaled[lane])
 
     def decorate(self, marks: Marks, selected: int) -> None:
         """Grid, ticks and lane titles for the current view; the selected channel is marked."""
