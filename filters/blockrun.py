@@ -175,7 +175,7 @@ class _Fused:
         return y, result[dim + 1:dim + 1 + count]
 
     def refresh(self) -> None:
-        self._warm = all(s.ready.all() for s in self.stages)
+        self._warm = all(s.all_ready for s in self.stages)
 
     def _matrix(self, n: int) -> np.ndarray:
         """M_n (cached): rows [new state; last input; each stage's last output; y], one
