@@ -21,7 +21,7 @@ from datetime import UTC, datetime
 from filters.chainset import ChainSet
 from filters.spec import ChainSpec
 from monitor import __version__
-from replay.csvtext import format_rows
+from replay.csvtext import format_full_precision
 from replay.reader import Gap, Recording, RecordingError
 from replay.writer import MAGIC
 
@@ -106,7 +106,7 @@ def apply_chain(
                 lines = [line.rsplit(",", drop)[0] for line in lines]
             elif resplit:
                 lines = _to_commas(lines, header.delimiter)
-            filtered = format_rows(chain.process(item.block.values))
+            filtered = format_full_precision(chain.process(item.block.values))
             out.write("\n".join([f"{a},{b}" for a, b in zip(lines, filtered, strict=True)]))
             out.write("\n")
             rows += len(lines)

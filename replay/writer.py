@@ -22,7 +22,7 @@ import numpy as np
 
 from monitor import __version__
 from monitor.block import Block, Schema
-from replay.csvtext import format_rows, format_seconds, join_columns
+from replay.csvtext import format_full_precision, format_rows, format_seconds, join_columns
 
 MAGIC = "# tunetrace recording 1"
 FLUSH_INTERVAL_S = 0.1
@@ -179,15 +179,16 @@ class RecordingWriter:
             raise ValueError("the block lacks the device time or counter its schema names")
         if self.schema.time_column:
             floats.insert(0, np.asarray(block.t_dev, dtype=np.float64).reshape(-1, 1))
+        filtered_text: list[str] = []
         if self.with_filtered:
             if filtered is None:
                 raise ValueError("filtered values are required when with_filtered is set")
-            floats.append(np.asarray(filtered, dtype=np.float64))
+            filtered_text = format_full_precision(np.asarray(filtered, dtype=np.float64))
         counter = []
         if self.schema.counter_column:
             counter = format_rows(np.asarray(block.counter, dtype=np.int64).reshape(-1, 1))
         text_rows = join_columns(format_seconds(t_rel), counter,
-                                 format_rows(np.hstack(floats)))
+                                 format_rows(np.hstack(floats)), filtered_text)
         stop = self._limit_cut(t_rel, text_rows)
         with self._cond:
             self._raise_pending_error()
