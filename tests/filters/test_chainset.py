@@ -367,3 +367,30 @@ def test_bench_part_runs_quick_and_the_chain_agrees_with_sosfilt():
                 "filters_iir_ratio", "filters_iir_ratio_100", "filters_chain_samples_per_s"):
         assert metrics[key] > 0, key
     assert metrics["filters_iir_ratio_ok"] is True
+
+
+_UNIT_DC = st.one_of(
+    st.builds(lambda o, f: StageSpec("butterworth", {"order": o, "cutoff_hz": f}),
+              st.integers(1, 8), st.floats(0.5, 100.0)),
+    st.builds(lambda o, f: StageSpec("bessel", {"order": o, "cutoff_hz": f}),
+              st.integers(1, 8), st.floats(0.5, 100.0)),
+    st.builds(lambda f, m: StageSpec("rc-lowpass", {"cutoff_hz": f, "method": m}),
+              st.floats(0.5, 60.0), st.sampled_from(["backward-euler", "tustin", "zoh"])),
+    st.builds(lambda f, q: StageSpec("notch", {"freq_hz": f, "q": q}),
+              st.floats(5.0, 100.0), st.floats(0.5, 50.0)),
+    st.builds(lambda a: StageSpec("ema", {"alpha": a}), st.floats(0.01, 1.0)),
+    st.builds(lambda w: StageSpec("moving-average", {"window": w}), st.integers(1, 60)),
+    st.builds(lambda w: StageSpec("median", {"window": 2 * w + 1}), st.integers(0, 10)),
+)
+
+
+@settings(max_examples=30, deadline=None)
+@given(old=st.lists(_UNIT_DC, min_size=0, max_size=3),
+       new=st.lists(_UNIT_DC, min_size=0, max_size=3),
+       level=st.floats(-50.0, 50.0))
+def test_any_retune_of_unit_gain_stages_under_a_constant_input_holds_it(old, new, level):
+    x = np.full((120, 3), level)
+    before = ChainSet(ChainSpec(tuple(old)), CHANNELS, RATE_HZ)
+    before.process(x)
+    after = retune(before, ChainSpec(tuple(new))).process(x[:60])
+    np.testing.assert_allclose(after, level, rtol=1e-9, atol=1e-9)
