@@ -6,8 +6,9 @@ never touches a running one. `process` is called only by the one thread that
 owns the chain.
 
 Channels whose stage lists are identical form a group and run together: one
-vectorized call per stage over a (n, g) array. A group whose stages are all
-linear also has a fused fast path for short blocks (see `filters.blockrun`).
+vectorized call per stage over a (n, g) array, and consecutive linear stages
+fused into one matrix product per chunk of samples (see `filters.blockrun`).
+Stages given to channels not in `channels` are refused, as a typo would be.
 
 Missing samples: a non-finite input (NaN, +-inf) passes through to the output
 unchanged, and the stages see the channel's last finite value in its place, so
@@ -18,7 +19,12 @@ Retune (`continue_from`): per channel and position, a stage of the same kind as
 the old chain's stage there takes over from it (an unchanged stage keeps its
 exact state; a changed one is settled at the old stage's last output, see
 `filters.stages`); any other stage is settled at the old chain's last output
-for that channel.
+for that channel. A channel the old chain did not have, or had not started,
+starts by its start policy.
+
+Caution for users: a filtered signal that feeds a control loop or a safety
+decision adds lag and can hide faults (a median removes real short events too);
+validate the chosen chain on the real system under the applicable standards.
 """
 
 from __future__ import annotations
