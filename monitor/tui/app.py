@@ -36,7 +36,7 @@ from monitor.tui.status_bar import StatusBar, UiState
 from monitor.tui.trace import WINDOWS_S, TraceView
 
 TRACE_HZ = 10.0
-TABLE_HZ = 4.0
+TABLE_HZ = 2.0
 PLOT_HZ = 60.0
 STATS_MAX_S = 10.0           # the table's statistics cover the trace window, at most this long
 DEFAULT_WINDOW_S = 5.0
@@ -74,7 +74,6 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         self.selected = 0
         self.plot: Any = None
         self._shown_key: tuple | None = None       # (spec, channel) the chain panel shows
-        self._form_key: tuple | None = None        # (index, stage, rate, sharers) in the form
         self._last_status: Any = None
 
     # -- layout -----------------------------------------------------------------------------
@@ -128,9 +127,9 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         unit = self.pipeline.schema.unit(c) if self.pipeline.schema else ""
         caption = f"{self.channel} [{unit}]  last {self.ui.window_s:g} s" if unit else (
             f"{self.channel}  last {self.ui.window_s:g} s")
-        self.query_one("#trace", TraceView).show(
-            snapshot.t_host - snapshot.t_host[-1], snapshot.raw[:, c], snapshot.filtered[:, c],
-            caption)
+        span = float(snapshot.t_host[-1] - snapshot.t_host[0])
+        self.query_one("#trace", TraceView).show(snapshot.raw[:, c], snapshot.filtered[:, c],
+                                                 span, caption)
 
     def refresh_table(self) -> None:
         """4 Hz: the channel table and the status lines."""
@@ -186,28 +185,27 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         self._shown_key = (self.session.spec, self.channel, self.session.channels)
         self.call_later(self._show_form)
 
-    async def _show_form(self) -> None:
+    def form_target(self) -> FormTarget | None:
+        """What the form should edit: the highlighted stage of the selected channel."""
         from monitor.tui.chain_edit import sharers
 
         index = self.query_one("#stages", StageList).selected_index
-        form = self.query_one("#form", ParamForm)
         if index is None or index >= len(self.session.spec.stages):
-            key = None
-            target = None
-        else:
-            try:
-                rate = self.session.rate_hz()
-            except ValueError as exc:
-                self.say(str(exc))
-                return
-            stage = self.session.spec.stages[index]
-            others = sharers(self.session.spec, index, self.channel, self.session.channels)
-            key = (index, stage, rate, others, self.ui.analysis_hz)
-            target = FormTarget(index, stage, rate, others, self.ui.analysis_hz)
-        if key == self._form_key and form.target is not None:
-            return
-        self._form_key = key
-        await form.show(target)
+            return None
+        try:
+            rate = self.session.rate_hz()
+        except ValueError as exc:
+            self.say(str(exc))
+            return None
+        others = sharers(self.session.spec, index, self.channel, self.session.channels)
+        return FormTarget(index, self.session.spec.stages[index], rate, others,
+                          self.ui.analysis_hz)
+
+    async def _show_form(self) -> None:
+        form = self.query_one("#form", ParamForm)
+        target = self.form_target()
+        if target != form.target or target is None:
+            await form.show(target)
 
     def on_option_list_option_highlighted(self, event: OptionList.OptionHighlighted) -> None:
         if event.option_list.id == "stages":
@@ -231,7 +229,6 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
                 form.refuse(str(exc))
             self.say(f"refused: {exc}")
             return False
-        self._form_key = None if form is None else self._form_key
         self.show_chain(highlight)
         return True
 

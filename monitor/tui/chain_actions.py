@@ -142,5 +142,5 @@ class ChainActions:
             form.refuse(str(exc))
             return
         if self.apply_spec(spec, highlight=at, form=form):
-            form.accepted(at, spec.stages[at])
+            form.accepted(self.form_target())    # the fields stay as typed, focus stays
             self.say(f"stage {at + 1} of {self.channel} applied")

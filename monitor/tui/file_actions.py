@@ -163,7 +163,6 @@ class FileActions:
         if not text:
             return
         self.ui.analysis_hz = float(text)
-        self._form_key = None
         self.show_chain()
         self.say(f"lag now computed at {self.ui.analysis_hz:g} Hz")
 

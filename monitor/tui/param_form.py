@@ -122,6 +122,7 @@ class ParamForm(VerticalScroll):
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
         self.target: FormTarget | None = None
+        self._fields: dict[str, Input | Select] = {}
         self.border_title = "stage"
 
     def compose(self) -> ComposeResult:
@@ -134,6 +135,7 @@ class ParamForm(VerticalScroll):
     async def show(self, target: FormTarget | None) -> None:
         """Rebuild the fields for `target` (None: no stage highlighted)."""
         self.target = None              # no previews while the fields are rebuilt
+        self._fields = {}
         fields = self.query_one("#form-fields", Vertical)
         await fields.remove_children()
         self._message("")
@@ -148,6 +150,8 @@ class ParamForm(VerticalScroll):
         self.query_one("#form-head", Static).update(self._head(target))
         rows = [self._row(stage, key) for key in field_keys(stage.kind)]
         await fields.mount_all(rows)
+        self._fields = {key: row.children[1] for key, row in zip(field_keys(stage.kind), rows,
+                                                                  strict=True)}
         self.target = target
         self.preview()
 
@@ -196,11 +200,7 @@ class ParamForm(VerticalScroll):
         defaults = KINDS[stage.kind].defaults
         params: dict[str, Any] = {}
         start = stage.start
-        for key in field_keys(stage.kind):
-            matches = self.query(f"#field-{key}")
-            if not matches:
-                continue
-            widget = matches.first()
+        for key, widget in self._fields.items():
             if isinstance(widget, Select):
                 value = widget.value
                 if value is Select.NULL:
@@ -258,17 +258,28 @@ class ParamForm(VerticalScroll):
         self._submit()
 
     def _submit(self) -> None:
+        """Check the candidate designs and post Apply; the derived values follow afterwards."""
         if self.target is None:
             return
-        stage = self.preview()
-        if stage is None or stage == self.target.stage:
-            return
-        self.post_message(self.Apply(self.target.index, stage))
+        from filters.design import design_stage
 
-    def accepted(self, index: int, stage: StageSpec) -> None:
-        """The app applied `stage` at `index`: it becomes the new reference of the form."""
-        if self.target is not None:
-            self.target = replace(self.target, index=index, stage=stage)
+        try:
+            stage = self.candidate()
+            design_stage(stage, self.target.rate_hz)
+        except ValueError:
+            self.preview()              # shows the refusal beside its field
+            return
+        if stage != self.target.stage:   # straight to the app: no hop per container
+            self.app.post_message(self.Apply(self.target.index, stage))
+        self.call_after_refresh(self.preview)
+
+    def accepted(self, target: FormTarget | None) -> None:
+        """The app applied the form's stage: `target` is the new reference, fields stay."""
+        if target is None or self.target is None or target.stage.kind != self.target.stage.kind:
+            return
+        self.target = target
+        self.border_title = f"stage {target.index + 1}: {target.stage.kind}"
+        self.query_one("#form-head", Static).update(self._head(target))
 
 
 def derived_text(design: Any, analysis_hz: float) -> str:

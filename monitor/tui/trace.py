@@ -1,16 +1,24 @@
-"""Terminal trace of one channel: raw (faint) against filtered (strong), in braille."""
+"""Terminal trace of one channel: raw (faint) against filtered (strong), in braille.
+
+Drawn with textual's line API: `show` rasterises once into one Strip per
+row (segments with pre-built styles), and `render_line` hands them out, so a
+10 Hz redraw costs one numpy raster and no markup parsing.
+"""
 
 from __future__ import annotations
 
 import numpy as np
-from rich.text import Text
+from rich.segment import Segment
+from rich.style import Style
+from textual.strip import Strip
 from textual.widget import Widget
 
 from monitor.tui.braille import cell_text, render_cells, value_range
 
-RAW_STYLE = "#5a6b7d"
-FILTERED_STYLE = "bold #ffb347"
-AXIS_STYLE = "#8a96a3"
+RAW_STYLE = Style.parse("#5a6b7d")
+FILTERED_STYLE = Style.parse("bold #ffb347")
+AXIS_STYLE = Style.parse("#8a96a3")
+SERIES_STYLES = (RAW_STYLE, FILTERED_STYLE)
 WINDOWS_S: tuple[float, ...] = (0.5, 1.0, 2.0, 5.0, 10.0, 20.0, 30.0, 60.0, 120.0)
 LABEL_WIDTH = 10
 
@@ -19,69 +27,73 @@ def _label(value: float) -> str:
     return f"{value:>{LABEL_WIDTH - 1}.4g} "
 
 
-class TraceView(Widget):
-    """Draws `show(t, raw, filtered)`; t, raw, filtered: (n,) float64 of one channel.
+def trace_rows(raw: np.ndarray, filtered: np.ndarray, span_s: float, width: int,
+               height: int) -> list[list[Segment]]:
+    """Segments of every row: y labels, the braille raster, then a time axis with a legend.
 
-    Holds the last data it got, so a freeze simply stops calling `show`.
+    raw, filtered: (n,) float64 oldest first; width, height: cells including labels/axis.
+    """
+    plot_w = max(width - LABEL_WIDTH, 1)
+    plot_h = max(height - 1, 1)
+    low, high = value_range([raw, filtered])
+    codes, owner = render_cells([raw, filtered], plot_w, plot_h, low, high)
+    labels = {0: _label(high), plot_h // 2: _label((low + high) / 2), plot_h - 1: _label(low)}
+    rows = []
+    for r, text in enumerate(cell_text(codes)):
+        segments = [Segment(labels.get(r, " " * LABEL_WIDTH), AXIS_STYLE)]
+        who = owner[r]
+        # one segment per run of cells drawn by the same series
+        edges = np.flatnonzero(np.diff(who)) + 1
+        starts = np.r_[0, edges]
+        ends = np.r_[edges, len(who)]
+        for a, b in zip(starts.tolist(), ends.tolist(), strict=True):
+            series = int(who[a])
+            segments.append(Segment(text[a:b], SERIES_STYLES[series] if series >= 0 else None))
+        rows.append(segments)
+    left = f"{'':{LABEL_WIDTH}}-{span_s:.3g} s   raw "
+    legend = [Segment(left, AXIS_STYLE), Segment("\u28ff", RAW_STYLE),
+              Segment("  filtered ", AXIS_STYLE), Segment("\u28ff", FILTERED_STYLE)]
+    used = sum(len(s.text) for s in legend)
+    legend.append(Segment(" " * max(width - used - 3, 1) + "now", AXIS_STYLE))
+    rows.append(legend)
+    return rows
+
+
+class TraceView(Widget):
+    """Draws `show(raw, filtered, span_s, caption)` for one channel; keeps the last picture.
+
+    A freeze simply stops calling `show`; a resize redraws from the kept data.
     """
 
     DEFAULT_CSS = """
-    TraceView { width: 1fr; height: 1fr; min-height: 6; border: round #3a4a5c; padding: 0 0; }
+    TraceView { width: 1fr; height: 1fr; min-height: 6; border: round #3a4a5c; }
     """
 
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
-        self._t = np.empty(0)
         self._raw = np.empty(0)
         self._filtered = np.empty(0)
-        self.caption = ""
+        self._span_s = 0.0
+        self._strips: list[Strip] = []
+        self._drawn_size: tuple[int, int] | None = None
 
-    def show(self, t: np.ndarray, raw: np.ndarray, filtered: np.ndarray, caption: str) -> None:
-        """Replace the drawn data and redraw."""
-        self._t, self._raw, self._filtered = t, raw, filtered
-        self.caption = caption
+    def show(self, raw: np.ndarray, filtered: np.ndarray, span_s: float, caption: str) -> None:
+        """Replace the drawn data (raw, filtered: (n,) float64) and redraw."""
+        self._raw, self._filtered, self._span_s = raw, filtered, span_s
         self.border_title = caption
+        self._draw()
         self.refresh()
 
-    def render(self) -> Text:
-        width = max(self.content_size.width - LABEL_WIDTH, 1)
-        height = max(self.content_size.height - 1, 1)
-        if len(self._raw) == 0:
-            return Text("waiting for samples...", style=AXIS_STYLE)
-        low, high = value_range([self._raw, self._filtered])
-        codes, owner = render_cells([self._raw, self._filtered], width, height, low, high)
-        rows = cell_text(codes)
-        text = Text(no_wrap=True, overflow="crop")
-        for r, row in enumerate(rows):
-            if r == 0:
-                label = _label(high)
-            elif r == height - 1:
-                label = _label(low)
-            elif r == height // 2:
-                label = _label((low + high) / 2)
-            else:
-                label = " " * LABEL_WIDTH
-            text.append(label, style=AXIS_STYLE)
-            _append_runs(text, row, owner[r])
-            text.append("\n")
-        span = float(self._t[-1] - self._t[0]) if len(self._t) > 1 else 0.0
-        left = f"{'':{LABEL_WIDTH}}-{span:.3g} s"
-        text.append(left, style=AXIS_STYLE)
-        text.append("   raw ", style=AXIS_STYLE)
-        text.append("\u28ff", style=RAW_STYLE)
-        text.append("  filtered ", style=AXIS_STYLE)
-        text.append("\u28ff", style=FILTERED_STYLE)
-        used = len(left) + 7 + 1 + 11 + 1
-        text.append(" " * max(LABEL_WIDTH + width - used - 3, 1) + "now", style=AXIS_STYLE)
-        return text
+    def _draw(self) -> None:
+        width, height = self.content_size.width, self.content_size.height
+        self._drawn_size = (width, height)
+        if len(self._raw) == 0 or width <= 0 or height <= 0:
+            self._strips = [Strip([Segment("waiting for samples...", AXIS_STYLE)])]
+            return
+        rows = trace_rows(self._raw, self._filtered, self._span_s, width, height)
+        self._strips = [Strip(row).crop_extend(0, width, None) for row in rows]
 
-
-def _append_runs(text: Text, row: str, owner: np.ndarray) -> None:
-    """Append one row, one style per run of cells with the same owner series."""
-    styles = (RAW_STYLE, FILTERED_STYLE)
-    start = 0
-    for i in range(1, len(row) + 1):
-        if i == len(row) or owner[i] != owner[start]:
-            who = int(owner[start])
-            text.append(row[start:i], style=styles[who] if who >= 0 else "")
-            start = i
+    def render_line(self, y: int) -> Strip:
+        if self._drawn_size != (self.content_size.width, self.content_size.height):
+            self._draw()
+        return self._strips[y] if y < len(self._strips) else Strip.blank(self.content_size.width)

@@ -114,7 +114,9 @@ def test_editing_a_cutoff_reaches_the_running_chain(start_pipeline):
             # the other channels keep what they ran
             assert kinds_on(pipeline, "current") == ["notch"]
             assert "applied" in app.ui.notice
-            await pilot.press("q")
+            assert app.focused is app.query_one("#field-cutoff_hz")   # focus stays in the field
+            await pilot.press("escape", "q")                           # leave the field, quit
+            assert await until(pilot, lambda: app.return_value is not None)
         return app.return_value
 
     assert run(scenario()) == 0
