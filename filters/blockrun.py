@@ -81,7 +81,7 @@ class StageRun:
                 ends.append(last)
             else:
                 x = segment.process(x)
-                ends.append(x[-1:])
+                ends.append(x[-1:].copy())  # not a view of what the caller receives
         self._ends = ends
         return x.copy() if not self.stages else x
 

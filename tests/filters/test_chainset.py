@@ -245,6 +245,15 @@ def test_retune_to_a_faster_filter_moves_toward_the_input_without_overshoot():
     assert np.all(np.diff(y, axis=0) > 0)
 
 
+def test_retune_after_a_missing_last_sample_still_continues():
+    x = np.full((100, 3), 7.0)
+    x[-1, 1] = np.nan  # the old chain's very last sample on "current" was missing
+    old = ChainSet(ChainSpec((StageSpec("median", {"window": 3}),)), CHANNELS, RATE_HZ)
+    old.process(x)
+    y = retune(old, ChainSpec((StageSpec("median", {"window": 5}),))).process(x[:4, :] * 0 + 9)
+    np.testing.assert_array_equal(y[:2], 7.0)  # the median of 5 still holds two old 7s
+
+
 def test_retune_under_a_constant_input_keeps_the_output_exactly():
     x = np.full((400, 3), 12.0)
     old = ChainSet(lowpass(8.0), CHANNELS, RATE_HZ)
