@@ -2,6 +2,8 @@
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from monitor.devicetime import DeviceClock, SequenceCounter
 
@@ -107,3 +109,29 @@ def test_counter_restart_is_a_gap_not_a_huge_drop():
     assert "board reset" in counter.take_gaps()[0]
     with pytest.raises(ValueError, match="8, 16 or 32"):
         SequenceCounter(12)
+
+
+@settings(max_examples=100, deadline=None)
+@given(bits=st.sampled_from([16, 32]), seed=st.integers(0, 10_000), n=st.integers(2, 400))
+def test_any_clock_with_steps_below_half_the_wrap_unwraps_exactly(bits, seed, n):
+    rng = np.random.default_rng(seed)
+    modulus = 2**bits
+    steps = rng.integers(0, modulus // 2, size=n - 1)
+    true = int(rng.integers(0, modulus)) + np.concatenate([[0], np.cumsum(steps)])
+    splits = np.sort(rng.choice(np.arange(1, n), size=min(5, n - 1), replace=False))
+    t = feed_in_blocks(DeviceClock("us", bits), true % modulus, splits)
+    np.testing.assert_allclose(t, true * 1e-6, rtol=0, atol=1e-9)
+
+
+@settings(max_examples=100, deadline=None)
+@given(bits=st.sampled_from([8, 16, 32]), seed=st.integers(0, 10_000), n=st.integers(2, 400))
+def test_any_loss_pattern_below_half_the_wrap_is_counted_exactly(bits, seed, n):
+    rng = np.random.default_rng(seed)
+    modulus = 2**bits
+    steps = rng.integers(1, min(modulus // 2, 50), size=n - 1)   # 1 = no loss
+    true = int(rng.integers(0, modulus)) + np.concatenate([[0], np.cumsum(steps)])
+    counter = SequenceCounter(bits)
+    got = feed_in_blocks(counter, true % modulus, [n // 3, n // 2])
+    np.testing.assert_array_equal(got - got[0], true - true[0])
+    assert counter.dropped == int(np.sum(steps - 1))
+    assert len(counter.take_gaps()) == int(np.sum(steps > 1))
