@@ -92,29 +92,36 @@ def apply_chain(
     resplit = header.delimiter != ","
     rows = gaps = 0
     shown = 0.0
-    with open(out_path, "w" if force else "x", encoding="utf-8", newline="",
-              buffering=_OUT_BUFFER) as out:
-        out.write(_output_header(recording, kept + added, rate, origin, chain_text, ours))
-        for item in recording.segments(keep_text=True):
-            if isinstance(item, Gap):
-                gaps += 1
-                if ours:
-                    out.write(f"# gap: {item.reason}\n")
-                continue
-            lines = item.lines
-            if drop:
-                lines = [line.rsplit(",", drop)[0] for line in lines]
-            elif resplit:
-                lines = _to_commas(lines, header.delimiter)
-            filtered = format_full_precision(chain.process(item.block.values))
-            out.write("\n".join([f"{a},{b}" for a, b in zip(lines, filtered, strict=True)]))
-            out.write("\n")
-            rows += len(lines)
-            now = time.monotonic()
-            if progress is not None and now - shown > 0.2:
-                shown = now
-                progress(recording.progress())
-        size = out.tell()
+    out = open(out_path, "w" if force else "x", encoding="utf-8", newline="",
+               buffering=_OUT_BUFFER)
+    try:
+        with out:
+            out.write(_output_header(recording, kept + added, rate, origin, chain_text, ours))
+            for item in recording.segments(keep_text=True):
+                if isinstance(item, Gap):
+                    gaps += 1
+                    if ours:
+                        out.write(f"# gap: {item.reason}\n")
+                    continue
+                lines = item.lines
+                if drop:
+                    lines = [line.rsplit(",", drop)[0] for line in lines]
+                elif resplit:
+                    lines = _to_commas(lines, header.delimiter)
+                filtered = format_full_precision(chain.process(item.block.values))
+                out.write("\n".join([f"{a},{b}" for a, b in zip(lines, filtered, strict=True)]))
+                out.write("\n")
+                rows += len(lines)
+                now = time.monotonic()
+                if progress is not None and now - shown > 0.2:
+                    shown = now
+                    progress(recording.progress())
+    except BaseException:
+        # a half-written output would pass for a whole one: remove it (disk full, Ctrl-C)
+        if os.path.isfile(out_path):
+            os.unlink(out_path)
+        raise
+    size = os.path.getsize(out_path) if os.path.isfile(out_path) else 0
     if progress is not None:
         progress(1.0)
     return ApplySummary(rows, recording.bad_rows, recording.torn_last_line, gaps, rate,

@@ -253,3 +253,23 @@ def test_help_of_the_verbs(capsys):
         with pytest.raises(SystemExit):
             main([verb, "--help"])
         assert option in capsys.readouterr().out
+
+
+def test_apply_running_out_of_space_removes_the_half_written_output(tmp_path):
+    src, out = tmp_path / "in.csv", tmp_path / "out.csv"
+    write_recording(src, weigh_station(5000))
+    chain = tmp_path / "chain.toml"
+    chain.write_text(CHAIN_TEXT)
+    size = src.stat().st_size
+
+    def small_disk():
+        # the kernel refuses to grow a file past the input's size (EFBIG), like a full disk
+        resource.setrlimit(resource.RLIMIT_FSIZE, (size, size))
+
+    result = subprocess.run(tunetrace_cmd("apply", str(src), "--chain", str(chain), "-o",
+                                          str(out)),
+                            capture_output=True, text=True, timeout=60, preexec_fn=small_disk)
+    assert result.returncode == 1
+    assert result.stderr == (f"tunetrace apply: writing the output {out} failed: File too "
+                             "large; free space or choose another disk.\n")
+    assert not out.exists()
