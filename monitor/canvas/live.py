@@ -74,6 +74,16 @@ class LivePlot:
     def is_open(self) -> bool:
         return self._plot is not None
 
+    @property
+    def canvas(self) -> PlotCanvas | None:
+        """The panels being shown (None while closed); read it, draw through pump()."""
+        return self._plot
+
+    @property
+    def shown_chain(self) -> object:
+        """The pipeline chain object the response panel was last drawn from."""
+        return self._shown_chain
+
     # -- opening and closing -------------------------------------------------------------
 
     def open(self) -> str | None:
@@ -113,6 +123,8 @@ class LivePlot:
         plot.canvas.events.close.connect(self._on_close)
         plot.canvas.events.key_press.connect(self._on_key)
         plot.canvas.events.mouse_move.connect(self._on_mouse)
+        self._app.process_events()      # let the window appear, then fix the clip rectangles
+        plot.refresh_clipping()
         self._history = None
         self._shown_chain, self._shown_selected = None, -1
         self._last_spectrum = 0.0
@@ -171,6 +183,7 @@ class LivePlot:
     def _rebuild(self) -> None:
         """Rebuild the panels in the same window (overlay toggle, new schema)."""
         self._plot.rebuild(self._channels, overlay=self.state.overlay)
+        self._plot.refresh_clipping()
         self._shown_chain, self._shown_selected = None, -1
         self._last_spectrum = 0.0
 

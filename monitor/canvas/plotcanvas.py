@@ -80,6 +80,21 @@ class PlotCanvas:
         self.readout = ""
         self.window: tuple[int, int] = (0, 0)   # absolute sample indices shown
 
+    def areas(self) -> list:
+        """Every PlotArea of the panels."""
+        return [*self.time.lanes, self.spectrum.area, self.response.magnitude,
+                self.response.phase]
+
+    def refresh_clipping(self) -> None:
+        """Recompute each area's clip rectangle in framebuffer pixels.
+
+        A ViewBox computes it when its transforms change; a window that appears
+        after the panels were built (glfw) can leave it stale, and then the
+        clipped data draws nowhere. Calling its resize handler recomputes it.
+        """
+        for area in self.areas():
+            area.view.on_resize(None)
+
     def rebuild(self, channels: Sequence[str], units: Sequence[str] | None = None,
                 overlay: bool | None = None) -> None:
         """Replace every panel (new channels, or lanes <-> overlay) in the same canvas."""
