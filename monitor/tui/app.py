@@ -15,6 +15,7 @@ from __future__ import annotations
 import argparse
 import math
 import os
+import sys
 from typing import Any
 
 from textual.app import App, ComposeResult
@@ -73,6 +74,9 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
                                             or DEFAULT_ANALYSIS_HZ))
         self.selected = 0
         self.plot: Any = None
+        self._plot_timer: Any = None
+        self._plot_waiting = False
+        self._plot_reported = False
         self._shown_key: tuple | None = None       # (spec, channel) the chain panel shows
         self._last_status: Any = None
 
@@ -298,28 +302,52 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         self.push_screen(ShowText("Latest rejected frame", body))
 
     def action_open_plot(self) -> None:
-        if self.plot is not None and getattr(self.plot, "is_open", False):
+        if self.plot is not None and self.plot.is_open:
             self.say("the plot window is already open")
             return
         if not os.environ.get("DISPLAY"):
             self.say(NO_DISPLAY)
+            return
+        ring = self.pipeline.ring
+        if ring is None or ring.total < 2 or self.pipeline.rate() is None:
+            if not self._plot_waiting:            # try again once data flows
+                self._plot_waiting = True
+                self.say("the plot window opens once samples arrive")
+                self.set_timer(0.5, self._retry_plot)
             return
         try:
             from monitor.canvas import LivePlot
         except ImportError as exc:
             self.say(f"the plot window is not available: {exc}")
             return
-        plot = LivePlot(self.pipeline, lambda: self.selected)
-        why = plot.open()
+        if self.plot is None:
+            self.plot = LivePlot(self.pipeline, lambda: self.selected)
+        why = self.plot.open()
         if why is not None:
             self.say(why)
             return
-        self.plot = plot
-        self.set_interval(1 / PLOT_HZ, self._pump_plot)
+        self._plot_reported = False
+        if self._plot_timer is None:
+            self._plot_timer = self.set_interval(1 / PLOT_HZ, self._pump_plot)
+        self.say("plot window open")
+
+    def _retry_plot(self) -> None:
+        self._plot_waiting = False
+        self.action_open_plot()
 
     def _pump_plot(self) -> None:
-        if self.plot is not None and getattr(self.plot, "is_open", False):
+        """60 Hz: let the plot draw a frame if one is due; say once why it closed."""
+        if self.plot is None:
+            return
+        if self.plot.is_open:
             self.plot.pump()
+        elif not self._plot_reported:
+            self._plot_reported = True
+            self.say(f"{self.plot.reason or 'the plot window closed'}; o opens it again")
+
+    def on_unmount(self) -> None:
+        if self.plot is not None:
+            self.plot.close("the session ended")
 
     @property
     def is_replay(self) -> bool:
@@ -337,13 +365,9 @@ def run_app(pipeline: Any, args: argparse.Namespace) -> int:
     try:
         result = app.run()
     finally:
-        if app.plot is not None:
-            try:
-                app.plot.close()
-            finally:
-                app.plot = None
         pipeline.stop()
     status = pipeline.status()
-    if status.recording_error:
-        print(f"tunetrace: {status.recording_error}")
+    for problem in (status.recording_error, status.error):
+        if problem:
+            print(f"tunetrace: {problem}", file=sys.stderr)
     return int(result or 0)

@@ -2,20 +2,18 @@
 
 from __future__ import annotations
 
-import argparse
 import asyncio
 import os
 import re
-import time
 
 import numpy as np
 import pytest
 from scipy import signal
+from tui_helpers import asking, make_app, until
 
 from filters.chainfile import format_chain, parse_chain
 from filters.design import design_stage
 from filters.spec import StageSpec
-from monitor.tui.app import TunetraceApp
 from monitor.tui.dialogs import AskValue, PickChannels, PickKind
 from monitor.tui.help_screen import HelpScreen
 from monitor.tui.keys import ACTIONS
@@ -45,20 +43,6 @@ def run(coro):
     return asyncio.run(coro)
 
 
-def make_app(pipeline, verb="live", **options) -> TunetraceApp:
-    return TunetraceApp(pipeline, argparse.Namespace(verb=verb, **options))
-
-
-async def until(pilot, predicate, timeout: float = 8.0) -> bool:
-    """Let the app run until `predicate()` holds (or `timeout` s pass); its last value."""
-    end = time.monotonic() + timeout
-    while time.monotonic() < end:
-        if predicate():
-            return True
-        await pilot.pause(0.05)
-    return bool(predicate())
-
-
 def kinds_on(pipeline, channel: str) -> list[str]:
     return [s.kind for _, s in pipeline.chain.spec.stages_for(channel)]
 
@@ -79,11 +63,6 @@ async def type_into(pilot, app, selector: str, text: str) -> None:
     await pilot.pause()
     field.value = ""
     await pilot.press(*text)
-
-
-def asking(app) -> bool:
-    """An AskValue dialog is up and composed."""
-    return isinstance(app.screen, AskValue) and bool(app.screen.query("#answer"))
 
 
 def field_error(app, key: str) -> str:
