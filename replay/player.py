@@ -16,7 +16,7 @@ import numpy as np
 
 from monitor.block import Block
 from monitor.counters import BadFrames
-from replay.reader import Gap, Recording
+from replay.reader import Gap, Recording, RecordingError
 
 MAX_BLOCK_ROWS = 8192
 
@@ -38,6 +38,7 @@ class ReplaySource:
     loop:     start again at start_s after the last row (a gap is reported).
     start_s:  seconds after the first row where playback begins.
     time_column, rate_hz: as for replay.reader.Recording (plain CSV files).
+    duration_s: seconds from the first to the last row (None when the file has no time).
 
     Block.t_host is the recording's time shifted onto this host's monotonic clock
     at the first sample, and it keeps increasing across loops and backward seeks.
@@ -53,6 +54,11 @@ class ReplaySource:
         self._speed = check_speed(speed)
         self.recording = Recording(path, time_column=time_column, rate_hz=rate_hz,
                                    chunk_rows=MAX_BLOCK_ROWS)
+        self.duration_s = self.recording.duration_s()
+        if self.duration_s is not None and start_s > self.duration_s:
+            raise RecordingError(f"--start {start_s:g} s is past the end of "
+                                 f"{self.recording.path}, which lasts "
+                                 f"{self.duration_s:.3f} s.")
         self.schema = self.recording.schema
         self.state = "connected"
         self.loop = loop

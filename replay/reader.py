@@ -128,6 +128,30 @@ class Recording:
         """t_host of the first data row (seconds)."""
         return self._t_first
 
+    def duration_s(self) -> float | None:
+        """Seconds from the first to the last row, read from the file's tail (no full pass);
+        None for plain CSV without a time column."""
+        if self._t_idx is None:
+            return None
+        with _open(self.path) as f:
+            size = f.seek(0, os.SEEK_END)
+            back = min(size - self._data_start, 1 << 16)
+            f.seek(size - back)
+            lines = f.read(back).split(b"\n")
+        # the first piece may start mid-line, the last one is torn or empty
+        whole = lines[1:-1] if size - back > self._data_start else lines[:-1]
+        for raw in reversed(whole):
+            line = raw.decode("utf-8", errors="replace").strip()
+            if not line or line.startswith("#"):
+                continue
+            try:
+                t = float(self._loadtxt([line])[0, self._t_idx]) * self.header.time_scale
+            except ValueError:
+                continue
+            if np.isfinite(t):
+                return max(0.0, t - self._t_first)
+        return None
+
     def rate(self) -> tuple[float, str] | None:
         """(Hz, origin): --rate ("declared"), the header ("recording"), or estimated."""
         if self.rate_override:

@@ -122,6 +122,18 @@ def test_pause_holds_rows_back(tmp_path):
     assert len(source.read_block(0.01)) == 100
 
 
+def test_duration_and_a_start_past_the_end(tmp_path):
+    path = tmp_path / "rec.csv"
+    write_recording(path, weigh_station(1000), gaps_at=(999,))     # a gap line near the end
+    source = ReplaySource(path, speed=None)
+    assert source.duration_s == pytest.approx(999 / RATE_HZ, abs=2e-6)
+    with pytest.raises(RecordingError, match=r"--start 5 s is past the end of .* 3.996 s"):
+        ReplaySource(path, start_s=5.0)
+    plain = tmp_path / "plain.csv"
+    plain.write_text("load\n1\n2\n")
+    assert ReplaySource(plain, rate_hz=10.0).duration_s is None
+
+
 def test_bad_files_and_arguments(tmp_path):
     with pytest.raises(RecordingError, match="does not exist"):
         ReplaySource(tmp_path / "nope.csv")
