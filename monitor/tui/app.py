@@ -79,6 +79,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         self._plot_reported = False
         self._shown_key: tuple | None = None       # (spec, channel) the chain panel shows
         self._last_status: Any = None
+        self._last_state = "connecting"
 
     # -- layout -----------------------------------------------------------------------------
 
@@ -164,7 +165,23 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
             ))
         self.query_one("#channels", ChannelTable).show(rows)
 
+    STATE_NOTICES = {
+        "reconnecting": "the source went away; reconnecting (nothing received is lost)",
+        "ended": "the source ended; the view holds the last data, q quits",
+    }
+
     def _status_extras(self, status: Any) -> None:
+        if status.source_state != self._last_state:
+            if status.source_state in self.STATE_NOTICES:
+                self.say(self.STATE_NOTICES[status.source_state])
+            elif self._last_state == "reconnecting" and status.source_state == "connected":
+                self.say(f"reconnected; the gap is marked ({status.last_gap or 'gap'})")
+            self._last_state = status.source_state
+        if self.is_replay:
+            source = self.pipeline.source
+            speed = getattr(source, "speed", 1.0)
+            shown = "max speed" if speed is None else f"{speed:g}x"
+            self.ui.playback = f"at {getattr(source, 'position_s', 0.0):.1f} s, {shown}"
         notes = [n for n in (status.error, status.chain_note, status.warning) if n]
         self.ui.sticky = [s for s in self.ui.sticky if s == NO_DISPLAY or s in notes]
         self.ui.sticky += [n for n in notes if n not in self.ui.sticky]

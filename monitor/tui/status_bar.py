@@ -33,6 +33,7 @@ class UiState:
     analysis_hz: float = 1.0
     scope: str = "channel"
     recording_started: float | None = None
+    playback: str = ""          # replay: position and speed, e.g. "at 12.3 s, 2x"
     sticky: list[str] = field(default_factory=list)   # notes shown while they hold
 
 
@@ -77,6 +78,8 @@ def status_lines(status: Any, ui: UiState) -> tuple[str, str]:
             else "rate unknown yet")
     line1 = (f"{status.source_description}  {status.source_state}  {rate}  "
              f"frames {status.frames}  bad {status.bad}  dropped {status.dropped}")
+    if ui.playback:
+        line1 += f"  {ui.playback}"
     if getattr(status, "ring_overflow", 0):
         line1 += f"  overflow {status.ring_overflow}"
     flags = []
