@@ -177,3 +177,13 @@ def test_a_mixed_chain_adds_the_generic_chain_for_other_channels(chain, tmp_path
     assert "/* channel signal: stage 4: gain */" in header
     readme = (tmp_path / "m" / "README.md").read_text()
     assert "every channel the chain file does not name" in readme
+
+
+def test_float32_too_coarse_suggests_double(chain, tmp_path, capsys):
+    path = chain('rate_hz = 1000.0\n[[stage]]\nkind = "butterworth"\norder = 8\n'
+                 'cutoff_hz = 0.1\n', "creep.toml")
+    code, _, err = export(capsys, path, "--target", "c-float", "-o", tmp_path / "f")
+    assert code == 2 and "use --double" in err
+    one_sentence(err)
+    assert export(capsys, path, "--target", "c-float", "--double", "-o", tmp_path / "f")[0] == 0
+    assert "typedef double creep_sample;" in (tmp_path / "f" / "creep.h").read_text()
