@@ -323,3 +323,21 @@ def _plain(app, renderable) -> str:
     console = Console(width=200, record=True, file=open(os.devnull, "w"))
     console.print(renderable)
     return console.export_text()
+
+
+def test_a_vanishing_source_is_said_and_the_session_goes_on(start_pipeline, pty_board):
+    pipeline = start_pipeline(parse_chain(CHAIN))
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            assert await until(pilot, lambda: app.query_one("#channels").row_count == 3)
+            pty_board.close()                                      # the board is unplugged
+            assert await until(pilot, lambda: "went away" in app.ui.notice)
+            assert "reconnecting" in str(app.query_one("#status").render())
+            await pilot.press("2")                                 # the UI still answers
+            assert await until(pilot, lambda: app.channel == "current")
+            await pilot.press("q")
+            assert await until(pilot, lambda: app.return_value == 0)
+
+    run(scenario())
