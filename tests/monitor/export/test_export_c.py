@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import platform
 import subprocess
 
 import numpy as np
@@ -40,7 +41,7 @@ offset = 0.05
 channels = ["load"]
 [[stage]]
 kind = "moving-average"
-window = 8
+window = 10
 channels = ["current"]
 [[stage]]
 kind = "ema"
@@ -369,3 +370,19 @@ def test_fixed_point_has_no_undefined_behaviour_at_the_extremes(export_build, ta
     for k, ch in enumerate(built.plan.channels):
         model = FixedChainModel(fixed_stages(ch, target)).process(x[:, k])
         assert np.array_equal(got[:, k], model)
+
+
+@pytest.mark.skipif(platform.machine() != "x86_64", reason="-m32 is an x86-64 gcc option")
+@pytest.mark.parametrize("target", ["c-float", "c-q15", "c-q31"])
+def test_freestanding_32_bit_build_needs_no_library(export_build, target):
+    # a 32-bit ABI without a C library, as on a microcontroller: int and long are 32 bits,
+    # 64-bit arithmetic must not pull in runtime helpers
+    built = export_build(EVERY_KIND, target, CHANNELS, full_scale=2.0)
+    obj = built.directory / "weigh32.o"
+    subprocess.run(["gcc", "-m32", "-fno-pic", "-ffreestanding", "-std=c99", "-O2", "-Wall",
+                    "-Wextra", "-Werror", "-pedantic", "-c", "-o", str(obj),
+                    str(built.directory / "weigh.c")], check=True, capture_output=True,
+                   timeout=60)
+    undefined = subprocess.run(["nm", "-u", str(obj)], capture_output=True, text=True,
+                               check=True).stdout.split()
+    assert undefined == []
