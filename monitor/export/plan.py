@@ -12,6 +12,8 @@ from filters.spec import ChainSpec
 TARGETS: tuple[str, ...] = ("c-float", "c-q15", "c-q31")
 GENERIC_CHANNEL = "signal"
 _IDENT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*\Z")
+# NAME_<x>_step is a helper of the generated C for these x: a channel so named gets "_ch".
+_HELPER_NAMES = frozenset(("tdf2", "df1", "cascade", "mavg", "median"))
 _C_RESERVED = frozenset(
     "auto break case char const continue default do double else enum extern float for goto "
     "if inline int long register restrict return short signed sizeof static struct switch "
@@ -98,6 +100,7 @@ def build_plan(spec: ChainSpec, channels: Sequence[str], rate_hz: float, target:
         raise ValueError(f"--target {target!r} is not one of {', '.join(TARGETS)}")
     chain = ChainSet(spec, channels, rate_hz)
     idents = [c_identifier(c) for c in channels]
+    idents = [i + "_ch" if i in _HELPER_NAMES else i for i in idents]
     if len(set(idents)) != len(idents):
         raise ValueError(f"channel names {list(channels)} give clashing C names {idents}; "
                          "rename them with --channels")

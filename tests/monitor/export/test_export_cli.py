@@ -187,3 +187,19 @@ def test_float32_too_coarse_suggests_double(chain, tmp_path, capsys):
     one_sentence(err)
     assert export(capsys, path, "--target", "c-float", "--double", "-o", tmp_path / "f")[0] == 0
     assert "typedef double creep_sample;" in (tmp_path / "f" / "creep.h").read_text()
+
+
+def test_channel_names_become_c_names_that_cannot_clash(chain, tmp_path, capsys, gcc):
+    path = chain('rate_hz = 250.0\n[[stage]]\nkind = "median"\nwindow = 3\n', "m.toml")
+    assert export(capsys, path, "--target", "c-q15", "--full-scale", "1", "-o", tmp_path / "c",
+                  "--channels", "median,9x,temp-1")[0] == 0
+    header = (tmp_path / "c" / "m.h").read_text()
+    for name in ("m_median_ch_step", "m__9x_step", "m_temp_1_step"):
+        assert name in header
+    done = subprocess.run([gcc, "-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-o",
+                           "st", "m_selftest.c", "m.c"], cwd=tmp_path / "c", capture_output=True,
+                          text=True, timeout=60)
+    assert done.returncode == 0, done.stderr
+    code, _, err = export(capsys, path, "--target", "c-float", "-o", tmp_path / "d",
+                          "--channels", "a-b,a_b")
+    assert code == 2 and "clashing C names" in err
