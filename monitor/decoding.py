@@ -171,10 +171,13 @@ class TextDecoder:
                 unique, n = f"{name}_{n}", n + 1
             names.append(unique)
         pairs = [(name, unit) for name, (_, unit) in zip(names, pairs, strict=True)]
-        missing = [c for c in (self.time_column, self.counter_column) if c and c not in names]
+        missing = [(c, what) for c, what in ((self.time_column, "--time-column"),
+                                             (self.counter_column, "--counter-column"))
+                   if c and c not in names]
         if missing:
-            self.warning = (f"column {missing[0]!r} is not in the stream (columns: "
-                            f"{', '.join(names)}); it is treated as a channel name only")
+            column, what = missing[0]
+            self.warning = (f"{what} {column!r} is not in the stream (columns: "
+                            f"{', '.join(names)}); check the name")
         self._time_col = names.index(self.time_column) if self.time_column in names else None
         self._counter_col = (names.index(self.counter_column)
                              if self.counter_column in names else None)

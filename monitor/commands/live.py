@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 import time
 from typing import Any, TextIO
@@ -46,6 +47,7 @@ def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
     """Print one stats line per second until `duration` s, Ctrl-C or the end of the source."""
     out, err = out or sys.stdout, err or sys.stderr
     plus_minus = "±" if _can_print(out, "±") else "+/-"
+    previous = _interrupt_on_sigterm()
     pipeline.start()
     started = time.monotonic()
     next_line, shown_total = started + STATS_INTERVAL_S, 0
@@ -73,6 +75,8 @@ def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
         pass
     finally:
         pipeline.stop()
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
     status = pipeline.status()
     _report_problems(status, reported, err)
     print(summary_line(time.monotonic() - started, status, pipeline, reductions),
@@ -81,6 +85,18 @@ def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
         raise UserError(f"the stream stopped on an internal error ({status.error}); "
                         f"please report it.", exit_code=1)
     return 0
+
+
+def _interrupt_on_sigterm() -> Any:
+    """Let SIGTERM (kill, timeout, a service manager) end the run like Ctrl-C, with the
+    summary line; returns the previous handler, or None off the main thread."""
+    def interrupt(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    try:
+        return signal.signal(signal.SIGTERM, interrupt)
+    except ValueError:                  # not the main thread
+        return None
 
 
 def _can_print(stream: TextIO, text: str) -> bool:

@@ -122,7 +122,7 @@ def test_time_and_counter_columns_leave_the_channels():
 def test_missing_time_column_is_a_warning_not_a_crash():
     dec = TextDecoder(time_column="t")
     block = dec.decode([b"load,vib", b"1,2"], 0.0)
-    assert block.t_dev is None and "'t' is not in the stream" in dec.warning
+    assert block.t_dev is None and "--time-column 't' is not in the stream" in dec.warning
 
 
 def test_same_column_for_time_and_counter_refused():

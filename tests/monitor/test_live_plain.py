@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import os
 import re
+import signal
 import subprocess
 import sys
 
@@ -162,3 +163,19 @@ def test_demo_records_a_readable_file(tmp_path):
     header = next(line for line in text if not line.startswith("#"))
     assert header == "t_host,load,current,vib"
     assert len([line for line in text if line and line[0].isdigit()]) > 200
+
+
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM])
+def test_interrupt_ends_with_the_summary_and_exit_zero(sig):
+    proc = subprocess.Popen([sys.executable, "-m", "monitor", "demo", "--plain"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    try:
+        first = proc.stdout.readline()             # the first stats line: streaming for sure
+        proc.send_signal(sig)
+        rest, stderr = proc.communicate(timeout=30)
+    finally:
+        proc.kill()
+    assert STATS.match(first.decode()), first
+    assert proc.returncode == 0, stderr.decode()
+    assert rest.decode().splitlines()[-1].startswith("summary: ")
+    assert b"Traceback" not in stderr
