@@ -12,6 +12,7 @@ import time
 
 import numpy as np
 from canvas_pixels import colour_mask, crop
+from vispy.util import keys
 
 from filters.chainfile import parse_chain
 from filters.chainset import ChainSet
@@ -53,6 +54,11 @@ def pump_for(plot: LivePlot, seconds: float, frames: int = 0) -> None:
         time.sleep(1 / 120)
 
 
+def press(plot: LivePlot, key, text: str) -> None:
+    """A key press in the plot window, as the window system delivers it."""
+    plot.canvas.canvas.events.key_press(key=key, text=text, modifiers=())
+
+
 def main() -> int:
     source = text_source(open_byte_source("sim://?rate=250&seed=1"), declared_rate=250.0)
     pipeline = Pipeline(source, chain_spec=parse_chain(CHAIN), rate_hz=250.0)
@@ -91,6 +97,23 @@ def main() -> int:
         selected[0] = 2
         pump_for(plot, 0.3, frames=plot.frames + 3)
         out["response_title_after_select"] = plot.canvas.response.title
+
+        # keys in the plot window: freeze, window length, overlay, follow
+        press(plot, keys.SPACE, " ")
+        shown = plot.canvas.window
+        pump_for(plot, 0.4, frames=plot.frames + 3)
+        out["frozen_holds_view"] = plot.state.frozen and plot.canvas.window == shown
+        press(plot, keys.SPACE, " ")
+        pump_for(plot, 0.2, frames=plot.frames + 3)
+        out["unfrozen_moves_on"] = plot.canvas.window[1] > shown[1]
+        press(plot, None, "]")
+        out["window_after_double"] = plot.state.window_s
+        press(plot, None, "o")
+        pump_for(plot, 0.1, frames=plot.frames + 2)
+        out["lanes_in_overlay"] = len(plot.canvas.layout.lanes)
+        press(plot, None, "o")
+        pump_for(plot, 0.1, frames=plot.frames + 2)
+        out["lanes_after_overlay"] = len(plot.canvas.layout.lanes)
 
         # the user closes the window; the stream goes on; the plot opens again
         plot.canvas.canvas.close()

@@ -68,6 +68,9 @@ def test_window_draws_a_live_pipeline_and_survives_close_and_errors(xvfb):
     assert report["retune_applied"] and report["response_follows_retune"], report
     assert report["marker_after_retune"] == [3.0], report
     assert report["response_title_after_select"].startswith("response of vib"), report
+    assert report["frozen_holds_view"] and report["unfrozen_moves_on"], report
+    assert report["window_after_double"] == 4.0, report
+    assert report["lanes_in_overlay"] == 1 and report["lanes_after_overlay"] == 3, report
     assert report["closed_by_user"] and report["close_reason"] == "the plot window was closed"
     assert report["samples_while_closed"] > 50, report           # 250 Hz for 0.5 s
     assert report["reopen"] is None and report["frames_after_reopen"] >= 5, report
