@@ -31,7 +31,6 @@ from typing import Any
 
 import numpy as np
 
-FORMS: tuple[str, ...] = ("biquads", "moving-average", "median", "gain")
 # Frequencies (Hz) of a design's `derived` or `params` that the report checks the response at.
 CHARACTERISTIC_KEYS: tuple[str, ...] = ("cutoff_hz", "centre_hz", "low_hz", "high_hz", "freq_hz")
 MAX_MEDIAN_WINDOW = 255
