@@ -59,7 +59,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
     CSS = """
     Screen { layout: vertical; background: #10151c; }
     #middle { height: 1fr; }
-    #side { width: 62; }
+    #side { width: 45%; min-width: 44; max-width: 64; }
     """
     BINDINGS = _bindings()
     COMMANDS = App.COMMANDS | {SessionCommands}
@@ -103,7 +103,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         if os.environ.get("DISPLAY"):
             self.action_open_plot()
         else:
-            self.ui.sticky.append(NO_DISPLAY)
+            self.say(NO_DISPLAY)                       # once; the next message replaces it
         self.refresh_table()
 
     # -- what the panels show --------------------------------------------------------------
@@ -183,8 +183,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
             shown = "max speed" if speed is None else f"{speed:g}x"
             self.ui.playback = f"at {getattr(source, 'position_s', 0.0):.1f} s, {shown}"
         notes = [n for n in (status.error, status.chain_note, status.warning) if n]
-        self.ui.sticky = [s for s in self.ui.sticky if s == NO_DISPLAY or s in notes]
-        self.ui.sticky += [n for n in notes if n not in self.ui.sticky]
+        self.ui.sticky = notes                          # shown while they hold
         if status.notice and status.notice != getattr(self, "_pipeline_notice", None):
             self._pipeline_notice = status.notice
             self.say(status.notice)

@@ -88,12 +88,11 @@ def status_lines(status: Any, ui: UiState) -> tuple[str, str]:
     if ui.frozen:
         flags.append("TRACE FROZEN")
     flags.append("edits: this channel" if ui.scope == "channel" else "edits: all sharing")
-    parts = [recording_text(status, ui), *flags]
+    parts = [ui.notice] if ui.notice else []
+    parts.append(recording_text(status, ui))
     if status.chain_error:
         parts.append(f"chain: {status.chain_error}")
-    parts += ui.sticky
-    if ui.notice:
-        parts.append(ui.notice)
+    parts += ui.sticky + flags
     return line1, "  |  ".join(parts)
 
 
@@ -101,14 +100,15 @@ class StatusBar(Static):
     """Two lines under the panels; `show(status, ui)` redraws them."""
 
     DEFAULT_CSS = """
-    StatusBar { height: 2; background: #1c2430; color: #c8d0da; padding: 0 1; }
+    StatusBar { height: 2; background: #1c2430; color: #c8d0da; padding: 0 1;
+                text-wrap: nowrap; text-overflow: ellipsis; }
     """
 
     def show(self, status: Any, ui: UiState) -> None:
         from rich.text import Text
 
         line1, line2 = status_lines(status, ui)
-        text = Text()
+        text = Text(no_wrap=True, overflow="ellipsis")     # one line each, however narrow
         state = status.source_state if status is not None else ""
         if state and state in line1:
             head, _, tail = line1.partition(f"  {state}  ")
@@ -118,5 +118,10 @@ class StatusBar(Static):
         else:
             text.append(line1)
         text.append("\n")
-        text.append(line2, style="bold #ff8080" if line2.startswith("REC") else "")
+        for i, part in enumerate(line2.split("  |  ")):
+            if i:
+                text.append("  |  ", style="#5a6b7d")
+            style = ("bold #ff8080" if part.startswith("REC ") else
+                     "#e0c060" if i == 0 and ui.notice else "")
+            text.append(part, style=style)
         self.update(text)

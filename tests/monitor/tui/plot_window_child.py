@@ -26,7 +26,7 @@ def main() -> None:
             report["opened"] = await until(
                 pilot, lambda: app.plot is not None and app.plot.is_open, 20)
             report["notice"] = app.ui.notice
-            report["sticky"] = list(app.ui.sticky)
+            report["status"] = str(app.query_one("#status").render())
             report["pumped"] = await until(
                 pilot, lambda: app.plot is not None and app.plot.frames >= 3, 20)
             report["frames"] = app.plot.frames if app.plot is not None else 0
