@@ -183,6 +183,21 @@ def test_start_seconds_skips_rows(tmp_path):
     assert [g.reason for g in gaps] == ["reconnected at row 900"]
 
 
+def test_start_after_a_full_pass_uses_the_chunk_index(tmp_path):
+    from replay.reader import Recording
+
+    path = tmp_path / "rec.csv"
+    values = weigh_station(3000)
+    write_recording(path, values, gaps_at=(2000,))
+    rec = Recording(path, chunk_rows=100, chunk_bytes=2000)
+    t_all, _ = table_of(rec)                       # the first pass builds the index
+    assert len(rec._index) > 50
+    for start_s in (0.5, 7.9, 11.0):
+        first = int(np.searchsorted(t_all, t_all[0] + start_s))
+        np.testing.assert_array_equal(table_of(rec, start_s)[1], values[first:])
+    assert rec.gaps == 1 and rec.rows == 3000 and rec.bad_rows == 0   # counted once
+
+
 @pytest.mark.parametrize("content, message", [
     ("", "has no header row"),
     ("# only a comment\n", "has no header row"),
