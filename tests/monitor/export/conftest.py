@@ -57,14 +57,24 @@ class Built:
         return exe
 
 
-@pytest.fixture
-def export_build(tmp_path):
+@pytest.fixture(scope="module")
+def export_build(tmp_path_factory):
     """export_build(chain_text, target, channels=None, full_scale=1.0, double=False,
-    rate=250.0, seconds=2.0) -> Built (files written and the self-test compiled)."""
+    rate=250.0, seconds=2.0) -> Built (files written and the self-test compiled).
+    Identical requests within a test module share one build (each takes a gcc run)."""
     gcc = need("gcc")
+    cache: dict[tuple, Built] = {}
 
     def make(chain_text: str, target: str, channels=None, full_scale=1.0, double=False,
              rate: float = 250.0, seconds: float = 2.0, name: str = "weigh") -> Built:
+        key = (chain_text, target, tuple(channels or ()), full_scale, double, rate, seconds,
+               name)
+        if key not in cache:
+            cache[key] = build(chain_text, target, channels, full_scale, double, rate,
+                               seconds, name)
+        return cache[key]
+
+    def build(chain_text, target, channels, full_scale, double, rate, seconds, name) -> Built:
         from filters.chainfile import parse_chain
         from filters.fixedreport import report_for_plans
         from monitor.export import export_texts, write_files
@@ -77,7 +87,7 @@ def export_build(tmp_path):
         report = report_for_plans({c.name: c.plans for c in plan.channels}, rate,
                                   plan.report_target, scales)
         texts = export_texts(spec, plan, report, "test.toml", seconds)
-        directory = tmp_path / f"{target}{'-double' if double else ''}"
+        directory = tmp_path_factory.mktemp(f"{target}{'-double' if double else ''}")
         write_files(directory, texts)
         exe = directory / f"{name}_selftest"
         done = subprocess.run([gcc, *CFLAGS, "-o", str(exe), str(directory / f"{name}_selftest.c"),
