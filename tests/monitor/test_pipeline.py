@@ -383,3 +383,16 @@ def test_device_time_gives_the_rate_and_counter_gaps_count_as_dropped(wait_for):
     assert status.chain_note is None and pipe.chain.rate_hz == pytest.approx(500.0)
     assert pipe.schema.time_column == "t_s" and "t_s" not in pipe.schema.channels
     assert status.error is None and status.last_bad_reason
+
+
+def test_core_bench_quick_reports_every_metric():
+    from monitor.bench import core
+
+    metrics = core.run(quick=True)
+    for key in ("pipeline_lines_per_s", "reference_lines_per_s", "ratio", "latency_p99_ms",
+                "identity_ratio", "board_to_ring_p99_ms", "help_seconds"):
+        assert metrics[key] > 0, key
+    assert metrics["ratio"] == pytest.approx(
+        metrics["pipeline_lines_per_s"] / metrics["reference_lines_per_s"])
+    assert metrics["latency_samples"] == 600        # every line the board wrote was measured
+    assert all(isinstance(metrics[k], bool) for k in metrics if k.endswith("_ok"))
