@@ -203,7 +203,7 @@ class RecordingWriter:
             self._append(f"# stopped: {reason}\n", 0)
             self.full = reason
         self.close()
-        raise RecordingFull(f"recording {self.path} stopped: {reason}")
+        raise RecordingFull(f"{reason}; {self.path} is complete")
 
     def write_gap(self, reason: str) -> None:
         """Mark a reconnect or dropped frames at this point of the file; flushes."""

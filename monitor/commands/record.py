@@ -120,7 +120,7 @@ def run(args: argparse.Namespace) -> int:
     status = pipeline.status()
     print(summary(path, status, time.monotonic() - started), flush=True)
     if isinstance(sink.error, RecordingFull):
-        print(f"tunetrace record: {sink.error}", file=sys.stderr)
+        print(f"tunetrace record: recording stopped: {sink.error}", file=sys.stderr)
         return 0
     if isinstance(sink.error, OSError):
         raise UserError(open_error_sentence(sink.error, path), exit_code=1)
