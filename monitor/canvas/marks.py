@@ -16,6 +16,11 @@ FONT_PT = 7
 _ANCHORS = ("left", "center", "right")
 
 
+def _snap(*coords: float) -> tuple[float, ...]:
+    """Whole pixels: crisp lines, and a still frame compares equal to the last one."""
+    return tuple(float(round(float(c))) for c in coords)
+
+
 def flat_2d(visual) -> None:
     """Draw in plain painter's order: everything is at z = 0, so no depth test."""
     visual.set_gl_state(depth_test=False, blend=True)
@@ -55,7 +60,7 @@ class Marks:
 
     def grid(self, x0: float, y0: float, x1: float, y1: float) -> None:
         """A grid segment from (x0, y0) to (x1, y1), pixels."""
-        self._grid.append((x0, y0, x1, y1))
+        self._grid.append(_snap(x0, y0, x1, y1))
 
     def frame(self, rect) -> None:
         """The outline of a plot area (a layout.Rect), in the frame colour."""
@@ -65,13 +70,13 @@ class Marks:
 
     def mark(self, x0: float, y0: float, x1: float, y1: float, colour: palette.Color) -> None:
         """A marker segment (cutoff, Nyquist, cursor), drawn over the grid and under the data."""
-        self._marks.append((x0, y0, x1, y1))
+        self._marks.append(_snap(x0, y0, x1, y1))
         self._mark_colours.append(colour)
 
     def label(self, text: str, x: float, y: float, anchor: str = "center",
               colour: palette.Color = palette.TEXT) -> None:
         """Text centred vertically at y; anchor says which end of it sits at x."""
-        self._labels[anchor].append((text, x, y, colour))
+        self._labels[anchor].append((text, round(float(x)), round(float(y)), colour))
 
     def flush(self) -> None:
         """Give the visuals this frame's marks where they differ from the last frame's."""
