@@ -88,6 +88,9 @@ def header(plan: ExportPlan) -> str:
         lines.append("typedef struct { PFX_sample s1, s2; } PFX_tdf2;")
     for ch in plan.channels:
         scale = f", full scale +-{ch.full_scale:g}" if plan.fixed else ""
+        if plan.fixed:  # sample = round(reading / FULL_SCALE * 2^F), saturated
+            lines += ["", f"#define {plan.prefix.upper()}_{ch.ident.upper()}_FULL_SCALE "
+                      f"{ch.full_scale!r}  /* units per +-1.0 */"]
         lines += ["", f"/* channel {ch.name}{scale}: "
                   + (", ".join(p.label for p in ch.plans) or "no stages (passes through)")
                   + " */", "typedef struct {", "    int started;"]

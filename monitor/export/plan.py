@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Any
 
 from filters.fixedpoint import StagePlan
 from filters.spec import ChainSpec
@@ -29,6 +30,7 @@ class ExportChannel:
     plans:      the stages that run on it, in order (bypassed stages left out).
     bypassed:   labels of bypassed stages (documented, not exported).
     full_scale: units that map to +-1.0 in Q15/Q31 (and the vectors' amplitude).
+    designs:    the StageDesigns behind `plans` (for lag figures).
     """
 
     name: str
@@ -36,6 +38,7 @@ class ExportChannel:
     plans: tuple[StagePlan, ...]
     bypassed: tuple[str, ...]
     full_scale: float
+    designs: tuple[Any, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -106,7 +109,7 @@ def build_plan(spec: ChainSpec, channels: Sequence[str], rate_hz: float, target:
                          "rename them with --channels")
     out = []
     for name, ident in zip(channels, idents, strict=True):
-        plans, bypassed = [], []
+        plans, bypassed, designs = [], [], []
         for index, design in chain.designs_for(name):
             stage = spec.stages[index]
             label = f"stage {index + 1}: {design.kind}"
@@ -117,6 +120,7 @@ def build_plan(spec: ChainSpec, channels: Sequence[str], rate_hz: float, target:
                 plans.append(plan_stage(design, stage.start, label))
             except ValueError as exc:
                 raise ValueError(f"{label}: {exc}") from None
+            designs.append(design)
         out.append(ExportChannel(name, ident, tuple(plans), tuple(bypassed),
-                                 float(full_scales.get(name, 1.0))))
+                                 float(full_scales.get(name, 1.0)), tuple(designs)))
     return ExportPlan(target, prefix, float(rate_hz), tuple(out), double)

@@ -15,6 +15,17 @@ CAUTION = (
 )
 
 
+def _lag(designs: tuple, rate_hz: float) -> str:
+    """'; lag ...' : the chain's group delay where tunetrace design quotes it."""
+    if not designs:
+        return ""
+    from filters.analysis import default_analysis_hz, group_delay_s
+
+    at = default_analysis_hz(list(designs), rate_hz)
+    delay = group_delay_s(list(designs), at)
+    return f"; lag (group delay) at {at:g} Hz: {delay * 1e3:.3g} ms = {delay * rate_hz:.3g} samples"
+
+
 def _api(plan: ExportPlan) -> list[str]:
     p = plan.prefix
     ch = plan.channels[0].ident
@@ -61,7 +72,9 @@ def _scaling(plan: ExportPlan) -> list[str]:
     lines = ["## Q format and scaling", "",
              f"Samples are {q}: `int{f + 1}_t`, value = sample / 2^{f} x full scale. "
              f"Convert a reading in units with `round(reading / full_scale * 2^{f})`, "
-             "saturated to the type's range; the output uses the same scaling.", "",
+             "saturated to the type's range; the output uses the same scaling. "
+             f"`{plan.prefix.upper()}_<CH>_FULL_SCALE` in `{plan.prefix}.h` holds each "
+             "channel's full scale.", "",
              "| channel | full scale (units per +-1.0) | one LSB |", "|---|---|---|"]
     lines += [f"| {ch.name} | +-{ch.full_scale:g} | {ch.full_scale / 2 ** f:.6g} |"
               for ch in plan.channels]
@@ -148,7 +161,7 @@ def readme_text(plan: ExportPlan, report: QuantizationReport, chain_path: str,
         stages = "; ".join(f"{s.label} ({s.form}, start {s.start})" for s in ch.plans)
         lines.append(f"- `{ch.name}` -> `{p}_{ch.ident}_step`: {stages or 'no stages'}"
                      + (f"; bypassed, not exported: {', '.join(ch.bypassed)}"
-                        if ch.bypassed else ""))
+                        if ch.bypassed else "") + _lag(ch.designs, plan.rate_hz))
     if any(ch.name == GENERIC_CHANNEL for ch in plan.channels):
         lines += ["", f"`{GENERIC_CHANNEL}` is the chain of every channel the chain file does "
                   "not name (the stages that select every channel): keep one "

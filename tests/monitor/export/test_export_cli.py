@@ -69,6 +69,8 @@ def test_export_writes_files_and_the_readme_recipe_passes(chain, tmp_path, capsy
     assert "weigh_load_step" in readme and "## Quantization report" in readme
     if target != "c-float":
         assert "full scale" in readme and "| load | +-50 |" in readme
+        assert "#define WEIGH_LOAD_FULL_SCALE 50.0" in (out / "weigh.h").read_text()
+    assert "lag (group delay) at 12 Hz" in readme
     # run the README's shell recipe exactly as written
     recipe = re.search(r"```sh\n(.*?)```", readme, re.S).group(1)
     done = subprocess.run(["bash", "-e", "-c", recipe], cwd=out, capture_output=True,
