@@ -335,3 +335,12 @@ class FixedChainModel:
             self._started = True
             out[n] = v
         return out
+
+
+def quantization_report(designs: Any, rate_hz: float, target: str, full_scale: float = 1.0
+                        ) -> Any:
+    """The quantization report of StageDesigns for a C target (c-float, c-double, c-q15,
+    c-q31), with `format_text()`; it lives in filters.fixedreport, this is the short way in."""
+    from filters.fixedreport import quantization_report as build
+
+    return build(designs, rate_hz, target, full_scale)
