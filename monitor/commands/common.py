@@ -143,8 +143,23 @@ def declared_rate(args: argparse.Namespace, spec: Any, where: str | None) -> flo
 
 
 def ring_capacity(ring_seconds: float, rate_hz: float | None) -> int:
-    """Samples of history for `ring_seconds` at the rate (or 1 kHz when unknown)."""
-    return max(1, int(math.ceil(ring_seconds * (rate_hz or RING_RATE_IF_UNKNOWN_HZ))))
+    """Samples of history for `ring_seconds` at the rate (or 1 kHz when unknown).
+
+    UserError when 8 channels of that history would not fit in this machine's memory.
+    """
+    from monitor.ring import ring_bytes
+
+    capacity = max(1, int(math.ceil(ring_seconds * (rate_hz or RING_RATE_IF_UNKNOWN_HZ))))
+    try:
+        memory = os.sysconf("SC_PHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
+    except (ValueError, OSError, AttributeError):      # not every system tells
+        return capacity
+    need = ring_bytes(8, capacity)
+    if need > memory:
+        raise UserError(f"--ring-seconds {ring_seconds:g} needs {need / 1e9:.1f} GB for 8 "
+                        f"channels, more than this machine's {memory / 1e9:.1f} GB; give "
+                        f"fewer seconds.")
+    return capacity
 
 
 def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None = None,
@@ -170,6 +185,7 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
     force = getattr(args, "force", False)
     if record:
         check_record_path(record, force=force)
+    capacity = ring_capacity(getattr(args, "ring_seconds", DEFAULT_RING_SECONDS), rate)
     if isinstance(source, str):
         from monitor.sources import open_byte_source
 
@@ -183,7 +199,6 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
                                  time_column=getattr(args, "time_column", None),
                                  counter_column=getattr(args, "counter_column", None),
                                  declared_rate=rate, **text_time_options(args))
-    capacity = ring_capacity(getattr(args, "ring_seconds", DEFAULT_RING_SECONDS), rate)
     pipeline = Pipeline(source, chain_spec=spec, rate_hz=rate, ring_capacity=capacity)
     if record:
         pipeline.submit(start_recording(pipeline, record, chain_text, force=force))

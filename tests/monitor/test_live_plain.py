@@ -179,3 +179,8 @@ def test_interrupt_ends_with_the_summary_and_exit_zero(sig):
     assert proc.returncode == 0, stderr.decode()
     assert rest.decode().splitlines()[-1].startswith("summary: ")
     assert b"Traceback" not in stderr
+
+
+def test_history_larger_than_memory_is_one_sentence():
+    result = tunetrace("live", "sim://", "--plain", "--duration", "1", "--ring-seconds", "1e12")
+    assert result.returncode != 0 and "--ring-seconds" in one_sentence(result.stderr)
