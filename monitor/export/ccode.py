@@ -141,8 +141,11 @@ def _int_literal(value: int, fmt: QFormat) -> str:
 def _stage_step(ch: ExportChannel, j: int, plan: StagePlan, fixed: FixedStage | None,
                 t: CTypes) -> str:
     s = f"c->s{j}"
-    if plan.form == "biquads":
-        return f"v = PFX_cascade_step({s}, PFX_{ch.ident}_c{j}, {len(plan.sos)}u, v);"
+    if plan.form == "biquads":  # one call per section: constant coefficients fold in
+        one = "PFX_df1_step" if fixed is not None else "PFX_tdf2_step"
+        ref = "&" if fixed is not None else ""
+        return "\n    ".join(f"v = {one}(&{s}[{i}], {ref}PFX_{ch.ident}_c{j}[{i}], v);"
+                              for i in range(len(plan.sos)))
     if plan.form == "moving-average":
         if fixed is not None:
             return f"v = PFX_mavg_step({s}.buf, {plan.window}u, &{s}.pos, &{s}.sum, v);"

@@ -1,6 +1,6 @@
 """The C building blocks the generated NAME.c starts with (PFX_ is replaced by NAME_).
 
-Float: transposed direct form II biquad and cascade, steady-state priming, running-sum
+Float: transposed direct form II biquad (one call per section), steady-state priming, running-sum
 moving average. Fixed point (LIMIT_/ACC_MAX/UACC filled per Q15/Q31): saturation, the
 wrap-safe direct form I biquad, priming by DC gain, exact moving average, gain. Median for
 both. All are `static inline`, so unused ones cost nothing and raise no warning. The
@@ -15,15 +15,6 @@ static inline PFX_sample PFX_tdf2_step(PFX_tdf2 *s, const PFX_sample *c, PFX_sam
     s->s1 = c[1] * x - c[3] * y + s->s2;
     s->s2 = c[2] * x - c[4] * y;
     return y;
-}
-
-static inline PFX_sample PFX_cascade_step(PFX_tdf2 *s, const PFX_sample (*c)[6], unsigned n,
-                                   PFX_sample x)
-{
-    unsigned i;
-    for (i = 0; i < n; i++)
-        x = PFX_tdf2_step(&s[i], c[i], x);
-    return x;
 }
 
 /* Steady state at input u (u = 0: rest): each section as if u had held forever. */
@@ -106,15 +97,6 @@ static inline PFX_sample PFX_df1_step(PFX_df1 *s, const PFX_df1_coef *c, PFX_sam
     s->y2 = s->y1;
     s->y1 = y;
     return y;
-}
-
-static inline PFX_sample PFX_cascade_step(PFX_df1 *s, const PFX_df1_coef *c, unsigned n,
-                                          PFX_sample x)
-{
-    unsigned i;
-    for (i = 0; i < n; i++)
-        x = PFX_df1_step(&s[i], &c[i], x);
-    return x;
 }
 
 /* Steady state at input u (u = 0: rest): y = u * dc_gain, rounded. */
