@@ -80,6 +80,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         self._shown_key: tuple | None = None       # (spec, channel) the chain panel shows
         self._last_status: Any = None
         self._last_state = "connecting"
+        self._view_held = False
 
     # -- layout -----------------------------------------------------------------------------
 
@@ -281,7 +282,8 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
     def action_toggle_view_pause(self) -> None:
         from monitor.pipeline import Pause, Resume
 
-        paused = bool(self._last_status and self._last_status.paused)
+        paused = self._view_held           # what we asked for last (the status lags a block)
+        self._view_held = not paused
         self.pipeline.submit(Resume() if paused else Pause())
         self.say("view resumed" if paused else
                  "view held (space resumes); reading, filtering and recording go on"

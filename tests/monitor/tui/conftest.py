@@ -66,8 +66,10 @@ def pilot_idle_by_events(monkeypatch):
     import asyncio
 
     import textual.app
+    import textual.pilot
 
     async def short_wait(min_sleep: float = 0.0, max_sleep: float = 1.0) -> None:
         await asyncio.sleep(0.01)
 
     monkeypatch.setattr(textual.app, "wait_for_idle", short_wait)
+    monkeypatch.setattr(textual.pilot, "wait_for_idle", short_wait)

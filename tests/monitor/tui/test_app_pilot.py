@@ -168,14 +168,16 @@ def test_add_a_stage_from_the_kind_list_and_copy_the_chain(start_pipeline):
             await pilot.press("2")                                 # channel current
             assert await until(pilot, lambda: app.channel == "current")
             await pilot.press("a")
-            assert await until(pilot, lambda: isinstance(app.screen, PickKind))
+            assert await until(pilot, lambda: isinstance(app.screen, PickKind)
+                               and bool(app.screen.query("#kinds")))
             kinds = app.screen.query_one("#kinds")
             kinds.highlighted = [o.id for o in kinds.options].index("ema")
             await pilot.press("enter")
             assert await until(pilot, lambda: kinds_on(pipeline, "current") == ["ema"])
             assert kinds_on(pipeline, "load") == []
             await pilot.press("c")
-            assert await until(pilot, lambda: isinstance(app.screen, PickChannels))
+            assert await until(pilot, lambda: isinstance(app.screen, PickChannels)
+                               and bool(app.screen.query("#channels")))
             app.screen.query_one("#channels").select("vib")
             await pilot.press("enter")
             assert await until(pilot, lambda: kinds_on(pipeline, "vib") == ["ema"])
