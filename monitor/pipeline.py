@@ -210,7 +210,8 @@ class FramedSource:
         if block is None or len(block) == 0:
             return None
         n = len(block)
-        self._arrival.add(now, n)
+        # Every line is a sample period, a corrupted one too: count frames, not good samples.
+        self._arrival.add(now, max(n, len(frames)))
         return Block(self._timestamps(now, n), block.values, block.t_dev, block.counter)
 
     def _timestamps(self, now: float, n: int) -> np.ndarray:

@@ -132,6 +132,15 @@ def check_chain_at_rate(spec: Any, rate_hz: float, where: str) -> None:
             from None
 
 
+def warm_up_chain(spec: Any) -> None:
+    """Design `spec` once at a nominal rate, ignoring refusals, so the imports (scipy takes
+    about a second) happen now and not on the reader thread when the rate is found."""
+    try:
+        check_chain_at_rate(spec, RING_RATE_IF_UNKNOWN_HZ, "the chain")
+    except UserError:
+        pass
+
+
 def declared_rate(args: argparse.Namespace, spec: Any, where: str | None) -> float | None:
     """--rate, else the chain file's rate_hz; UserError when the two disagree."""
     rate = getattr(args, "rate", None)
@@ -181,6 +190,8 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
     rate = declared_rate(args, spec, chain_name)
     if spec is not None and rate is not None:
         check_chain_at_rate(spec, rate, chain_name or "the chain")
+    elif spec is not None:
+        warm_up_chain(spec)
     record = getattr(args, "record", None)
     force = getattr(args, "force", False)
     if record:

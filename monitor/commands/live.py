@@ -65,7 +65,7 @@ def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
                 stats = _newest_stats(pipeline, total - shown_total)
                 print(stats_line(now - started, status, pipeline, stats, plus_minus),
                       file=out, flush=True)
-                if stats:
+                if stats and status.chain_note is None:      # the chain was running
                     reductions.append([s.reduction_db for s in stats])
                 shown_total = total
                 next_line += STATS_INTERVAL_S * max(1, int((now - next_line) // STATS_INTERVAL_S))
