@@ -6,7 +6,7 @@ from rich.table import Table
 from rich.text import Text
 
 from monitor.tui.dialogs import ShowText
-from monitor.tui.keys import ACTIONS, CHANNEL_KEYS
+from monitor.tui.keys import ACTIONS, CHANNEL_KEYS, KEY_LABELS
 
 CAUTION = (
     "Caution: a filter adds lag and can hide faults. If the filtered signal will feed a "
@@ -26,7 +26,7 @@ def help_table() -> Table:
             group = action.group
             table.add_row("", "")
             table.add_row("", Text(group, style="bold underline"))
-        keys = " ".join(_label(k) for k in action.keys.split(","))
+        keys = " ".join(KEY_LABELS.get(k, k) for k in action.keys.split(","))
         table.add_row(keys, action.help)
     table.add_row("", "")
     table.add_row("", Text("Moving around", style="bold underline"))
@@ -38,12 +38,6 @@ def help_table() -> Table:
     table.add_row("", "")
     table.add_row("", Text(CAUTION, style="italic #e0c060"))
     return table
-
-
-def _label(key: str) -> str:
-    from monitor.tui.keys import KEY_LABELS
-
-    return KEY_LABELS.get(key, key)
 
 
 class HelpScreen(ShowText):

@@ -60,14 +60,14 @@ class ChainSession:
         return True
 
     def rate_hz(self) -> float:
-        """The rate new chains are designed for: the file's, else the running chain's."""
-        if self.spec.rate_hz:
-            return float(self.spec.rate_hz)
-        if self.chain is not None and getattr(self.chain, "rate_hz", None):
-            return float(self.chain.rate_hz)
-        measured = self.pipeline.rate()
-        if measured:
-            return float(measured[0])
+        """The rate new chains are designed for: the stream's (declared, device or estimated).
+
+        Not a loaded file's `rate_hz`: a chain designed for another rate would
+        put every corner in the wrong place on this stream.
+        """
+        known = self.pipeline.rate()
+        if known:
+            return float(known[0])
         raise ValueError("the sample rate is not known yet; wait for data or give --rate")
 
     def apply(self, spec: ChainSpec) -> Any:
