@@ -63,6 +63,7 @@ class PlotCanvas:
         self.canvas = scene.SceneCanvas(size=size, show=show, title=title, keys=None,
                                         bgcolor=palette.PANEL, app=app, resizable=False)
         self.size = (int(size[0]), int(size[1]))
+        self._offscreen = None   # vispy FrameBuffer for render(), made on first use
         self._populate(overlay)
 
     def _populate(self, overlay: bool) -> None:
@@ -213,9 +214,38 @@ class PlotCanvas:
                             colour=palette.READOUT)
         marks.flush()
 
+    def draw_offscreen(self) -> None:
+        """Draw the scene into this canvas's offscreen buffer and wait until it is finished.
+
+        Works with any backend (an EGL canvas has no on-screen surface); the
+        buffer is made once, not per frame as SceneCanvas.render() does.
+        """
+        from vispy import gloo
+        from vispy.gloo import gl
+
+        canvas = self.canvas
+        canvas.set_current()
+        if self._offscreen is None:
+            shape = (self.size[1], self.size[0])
+            self._offscreen = gloo.FrameBuffer(color=gloo.RenderBuffer(shape),
+                                               depth=gloo.RenderBuffer(shape))
+        canvas.push_fbo(self._offscreen, (0, 0), self.size)
+        try:
+            canvas.context.clear(color=canvas.bgcolor, depth=True)
+            canvas.draw_visual(canvas.scene)
+            canvas.context.flush()
+            gl.glFinish()
+        finally:
+            canvas.pop_fbo()
+
     def render(self) -> np.ndarray:
         """Draw offscreen and read back: (H, W, 4) uint8, alpha forced opaque."""
-        image = np.array(self.canvas.render())
+        self.draw_offscreen()
+        self.canvas.push_fbo(self._offscreen, (0, 0), self.size)
+        try:
+            image = np.array(self._offscreen.read())
+        finally:
+            self.canvas.pop_fbo()
         image[..., 3] = 255
         return image
 
