@@ -52,6 +52,7 @@ class TextFramer:
         if self._after_cr and data[:1] == b"\n":
             data = data[1:]                 # the LF of a CRLF split across two reads
             if not data:
+                self._after_cr = False
                 return []
         self._after_cr = data[-1:] == b"\r"
         if b"\r" in data:
