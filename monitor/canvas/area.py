@@ -17,16 +17,35 @@ from monitor.canvas.marks import Marks, flat_2d
 from monitor.canvas.ticks import format_hz, format_linear, linear_ticks, log_ticks
 
 
+def _time_camera(interactive: bool):
+    """A PanZoomCamera whose mouse wheel zooms x (time) only; drag pans, right-drag zooms both."""
+    from vispy.scene import cameras
+
+    class TimeCamera(cameras.PanZoomCamera):
+        def viewbox_mouse_event(self, event):
+            if event.type == "mouse_wheel" and self.interactive and not event.handled:
+                center = self._scene_transform.imap(event.pos)
+                self.zoom(((1 + self.zoom_factor) ** (-event.delta[1] * 30), 1.0), center)
+                event.handled = True
+                return
+            super().viewbox_mouse_event(event)
+
+    return TimeCamera(interactive=interactive)
+
+
 class PlotArea:
-    """A clipped data view at `rect` (pixels); x and y ranges in data units."""
+    """A clipped data view at `rect` (pixels); x and y ranges in data units.
+
+    interactive: the mouse zooms (wheel: x only) and pans it.
+    """
 
     def __init__(self, scene, rect: Rect, interactive: bool = False) -> None:
-        from vispy.scene import cameras, widgets
+        from vispy.scene import widgets
 
         self.rect = rect
         self.view = widgets.ViewBox(parent=scene, pos=(rect.x, rect.y), size=(rect.w, rect.h),
                                     border_width=0)
-        self.view.camera = cameras.PanZoomCamera(interactive=interactive)
+        self.view.camera = _time_camera(interactive)
         self._set = (0.0, 1.0, 0.0, 1.0)
         self.set_range(*self._set)
 

@@ -8,6 +8,7 @@ re 1 unit^2/Hz. The stage cutoffs of the selected channel are marked.
 from __future__ import annotations
 
 import math
+import warnings
 
 import numpy as np
 
@@ -39,8 +40,14 @@ def welch_db(values: np.ndarray, rate_hz: float) -> tuple[np.ndarray, np.ndarray
     nperseg = min(nperseg, n)
     if nperseg < 8:
         return np.empty(0), np.empty((0, values.shape[1]))
-    values = values[-(MAX_SEGMENTS + 1) * nperseg // 2:]
-    freqs, psd = welch(np.asarray(values, np.float64), fs=rate_hz, nperseg=nperseg, axis=0)
+    values = np.array(values[-(MAX_SEGMENTS + 1) * nperseg // 2:], np.float64)
+    missing = ~np.isfinite(values)
+    if missing.any():   # gaps (NaN) would spoil every segment: hold each column's mean
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)   # an all-NaN column: mean 0
+            means = np.nanmean(values, axis=0)
+        values[missing] = np.broadcast_to(np.nan_to_num(means), values.shape)[missing]
+    freqs, psd = welch(values, fs=rate_hz, nperseg=nperseg, axis=0)
     with np.errstate(divide="ignore"):
         db = 10.0 * np.log10(np.maximum(psd[1:], 1e-30))
     return freqs[1:], db

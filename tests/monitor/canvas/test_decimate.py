@@ -138,3 +138,4 @@ def test_history_pull_copies_only_what_is_new_from_a_real_ring():
     np.testing.assert_array_equal(t, snap.t_host)
     np.testing.assert_array_equal(values[:, :3], snap.raw.astype(np.float32))
     np.testing.assert_array_equal(values[:, 3:], snap.filtered.astype(np.float32))
+

@@ -36,6 +36,7 @@ def test_wheel_zooms_both_lanes_in_time_and_stops_following(plot):
     after0, after1 = canvas.time.lanes[0].range, canvas.time.lanes[1].range
     assert after0[1] - after0[0] < 0.9 * (before[1] - before[0])      # zoomed in
     assert after0[:2] == pytest.approx(after1[:2])                     # x linked across lanes
+    assert after1[2:] == pytest.approx(before[2:])                     # the wheel keeps y
     assert canvas.time.moved_by_user()
     state.following = False
     canvas.show_traces(history, state)

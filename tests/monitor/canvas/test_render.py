@@ -160,3 +160,12 @@ def test_bad_snapshot_arguments_name_the_problem(headless):
         render(t, raw, filtered, selected=5)
     with pytest.raises(ValueError, match="at least 2"):
         render(t[:1], raw[:1], filtered[:1])
+
+
+def test_the_other_backend_is_refused_with_a_sentence(headless):
+    from monitor.canvas import backend
+
+    assert backend.chosen() == backend.HEADLESS
+    assert backend.use(backend.HEADLESS) is headless          # asking again is fine
+    with pytest.raises(backend.BackendUnavailable, match="already draws through egl"):
+        backend.use(backend.WINDOW)
