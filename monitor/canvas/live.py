@@ -182,7 +182,10 @@ class LivePlot:
 
     def _rebuild(self) -> None:
         """Rebuild the panels in the same window (overlay toggle, new schema)."""
-        self._plot.rebuild(self._channels, overlay=self.state.overlay)
+        schema = self.pipeline.schema
+        units = (tuple(schema.unit(i) for i in range(len(self._channels)))
+                 if schema is not None else None)
+        self._plot.rebuild(self._channels, units, overlay=self.state.overlay)
         self._plot.refresh_clipping()
         self._shown_chain, self._shown_selected = None, -1
         self._last_spectrum = 0.0

@@ -29,9 +29,11 @@ class ViewState:
     """What the user chose to see.
 
     window_s: rolling window length (s); following: the view tracks the newest
-    sample and autoscales (False after a mouse zoom/pan or a freeze);
-    selected: channel index of the spectrum and response; decimate: min/max
-    per pixel column (False draws every sample, the benchmark's reference).
+    sample and autoscales (False after a mouse zoom or pan); frozen: no new
+    samples are taken in (the stream goes on); overlay: all channels in one
+    lane; selected: channel index of the spectrum and response; decimate:
+    min/max per pixel column (False draws every sample, the benchmark's
+    reference); cursor: mouse position in canvas pixels, or None.
     """
 
     window_s: float = 10.0

@@ -22,6 +22,9 @@ _SIZE_RE = re.compile(r"^\s*(\d+)\s*[xX]\s*(\d+)\s*$")
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.epilog = ("The time lanes show how far the filtered trace lags the raw one. A filter "
+                     "in front of a control loop or a safety decision adds that lag and can hide "
+                     "faults: validate it on the real system and follow the standards that apply.")
     parser.add_argument("file", metavar="FILE",
                         help="a tunetrace recording, or a CSV file with a header row")
     parser.add_argument("--chain", metavar="CHAIN",
