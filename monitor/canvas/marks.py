@@ -31,6 +31,7 @@ class Marks:
 
     def __init__(self, scene) -> None:
         from vispy.scene import visuals
+        from vispy.visuals.text.text import FontManager
 
         self._grid_visual = visuals.Line(pos=np.zeros((2, 2), np.float32), connect="segments",
                                          color=palette.GRID, width=1, method="gl", parent=scene)
@@ -42,9 +43,11 @@ class Marks:
         flat_2d(self._mark_visual)
         self._mark_visual.order = -1  # under the data, over the grid
         self._texts = {}
+        fonts = FontManager()   # one glyph atlas for the three label visuals of this canvas
         for anchor in _ANCHORS:
             text = visuals.Text("", pos=(0, 0), color=palette.TEXT, font_size=FONT_PT,
-                                anchor_x=anchor, anchor_y="center", parent=scene)
+                                anchor_x=anchor, anchor_y="center", parent=scene,
+                                font_manager=fonts)
             text.order = 3
             self._texts[anchor] = text
         self._shown: dict[str, object] = {}
