@@ -26,10 +26,12 @@ class History:
         self.channels = channels
         self.columns = 2 * channels
         self.capacity = int(capacity)
-        # Twice the capacity: appends go at the end; when full, the newest `capacity`
-        # samples move to the front (amortised O(1)), so every slice is a plain view.
-        self._t = np.empty(2 * self.capacity)
-        self._v = np.empty((2 * self.capacity, self.columns), dtype=np.float32)
+        # A quarter more than the capacity: appends go at the end; when full, the newest
+        # samples move to the front (about 4 rows copied per row appended, amortised),
+        # so every slice is a plain view, for 1.25x the memory.
+        self._rows = self.capacity + max(self.capacity // 4, 256)
+        self._t = np.empty(self._rows)
+        self._v = np.empty((self._rows, self.columns), dtype=np.float32)
         self._used = 0
         self.start = 0
         self.end = 0
@@ -61,7 +63,7 @@ class History:
             t_host, raw, filtered = t_host[keep], raw[keep], filtered[keep]
             self.clear(first_index + n - self.capacity)
             n = self.capacity
-        if self._used + n > 2 * self.capacity:
+        if self._used + n > self._rows:
             keep = min(self._used, self.capacity - n)
             self._t[:keep] = self._t[self._used - keep:self._used]
             self._v[:keep] = self._v[self._used - keep:self._used]

@@ -250,7 +250,7 @@ class LivePlot:
 
     def _history_for(self, ring, rate: float) -> History:
         """The plot's history, (re)made when the window outgrows it or the ring changed."""
-        wanted = min(ring.capacity, max(16, math.ceil(self.state.window_s * rate * 1.25) + 64))
+        wanted = min(ring.capacity, max(16, math.ceil(self.state.window_s * rate * 1.1) + 64))
         history = self._history
         if history is None or history.capacity < wanted or history.channels != ring.channels:
             history = History(ring.channels, wanted)
