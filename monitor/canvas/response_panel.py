@@ -40,15 +40,19 @@ def chain_curves(designs: Sequence, rate_hz: float) -> ResponseCurves:
 
     lo, hi = frequency_span(rate_hz)
     nyquist = rate_hz / 2
-    freqs = np.logspace(math.log10(lo), math.log10(nyquist * 0.999), POINTS)
+    # The stages' own frequencies join the grid, so a narrow notch shows its full depth.
+    named = np.array([hz for hz, _ in stage_markers(designs)])
+    freqs = np.union1d(np.logspace(math.log10(lo), math.log10(nyquist * 0.999), POINTS),
+                       named[(named > lo) & (named < nyquist * 0.999)])
     h = np.asarray(chain_response(list(designs), freqs, rate_hz), complex)
     if not any(getattr(d, "analog", None) is not None for d in designs):
         return ResponseCurves(freqs, h, None, None)
-    analog_freqs = np.logspace(math.log10(lo), math.log10(hi), POINTS)
-    ideal = np.ones(POINTS, complex)
+    analog_freqs = np.union1d(np.logspace(math.log10(lo), math.log10(hi), POINTS),
+                              named[(named > lo) & (named < hi)])
+    ideal = np.ones(len(analog_freqs), complex)
     for d in designs:
-        a = analog_response(d, analog_freqs) if d.analog is not None else None
-        if a is None:
+        a = analog_response(d, analog_freqs)
+        if a is None:   # a digital-only stage: its own response, held flat past Nyquist
             a = frequency_response(d, np.minimum(analog_freqs, nyquist * 0.999))
         ideal *= np.asarray(a, complex)
     return ResponseCurves(freqs, h, analog_freqs, ideal)
