@@ -214,6 +214,9 @@ class LivePlot:
 
     def _frame(self, now: float) -> None:
         plot, state, ring = self._plot, self.state, self.pipeline.ring
+        if plot.resized_to is not None:     # the user resized the window: lay out again
+            plot.resize(plot.resized_to)
+            self._shown_chain, self._last_spectrum = None, 0.0
         schema = self.pipeline.schema
         if schema is not None and tuple(schema.channels) != self._channels:
             self._channels = tuple(schema.channels)

@@ -15,7 +15,7 @@ import numpy as np
 from monitor.canvas import palette
 from monitor.canvas.decimate import BucketCache, pack_columns, pack_every, samples_per_bucket
 from monitor.canvas.history import History
-from monitor.canvas.layout import compute_layout
+from monitor.canvas.layout import MIN_SIZE, compute_layout
 from monitor.canvas.marks import Marks
 from monitor.canvas.response_panel import ResponsePanel, chain_curves, stage_markers
 from monitor.canvas.spectrum_panel import MAX_SEGMENTS, NPERSEG, SpectrumPanel, welch_db
@@ -63,10 +63,28 @@ class PlotCanvas:
         self.rate_hz = float(rate_hz)
         self.title = title
         self.canvas = scene.SceneCanvas(size=size, show=show, title=title, keys=None,
-                                        bgcolor=palette.PANEL, app=app, resizable=False)
+                                        bgcolor=palette.PANEL, app=app, resizable=show)
         self.size = (int(size[0]), int(size[1]))
+        self.resized_to: tuple[int, int] | None = None   # set by a window resize, see resize()
         self._offscreen = None   # vispy FrameBuffer for render(), made on first use
         self._populate(overlay)
+        self.canvas.events.resize.connect(self._on_resize)
+
+    def _on_resize(self, event) -> None:
+        size = (int(event.size[0]), int(event.size[1]))
+        if size != self.size:
+            self.resized_to = size
+
+    def resize(self, size: tuple[int, int]) -> None:
+        """Lay the panels out again for a canvas of `size` (width, height) px.
+
+        Sizes below layout.MIN_SIZE keep the smallest layout (the window clips it).
+        """
+        self.size = (max(int(size[0]), MIN_SIZE[0]), max(int(size[1]), MIN_SIZE[1]))
+        self.resized_to = None
+        self._offscreen = None
+        self.rebuild(self.channels)
+        self.refresh_clipping()
 
     def _populate(self, overlay: bool) -> None:
         """Create the panels' visuals for the current channels and overlay choice."""

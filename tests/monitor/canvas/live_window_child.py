@@ -115,6 +115,16 @@ def main() -> int:
         pump_for(plot, 0.1, frames=plot.frames + 2)
         out["lanes_after_overlay"] = len(plot.canvas.layout.lanes)
 
+        # the window is resized: the panels are laid out for the new size
+        plot.canvas.canvas.size = (1100, 720)
+        pump_for(plot, 0.3, frames=plot.frames + 3)
+        out["size_after_resize"] = list(plot.canvas.size)
+        out["lane_width_after_resize"] = plot.canvas.layout.lanes[0].w
+        image = plot.canvas.render()
+        lane = plot.canvas.layout.lanes[0]
+        out["lane0_filtered_px_after_resize"] = int(
+            crop(colour_mask(image, palette.filtered_colour(0)), lane).sum())
+
         # the user closes the window; the stream goes on; the plot opens again
         plot.canvas.canvas.close()
         pump_for(plot, 0.1)

@@ -17,6 +17,8 @@ from pathlib import Path
 import pytest
 from conftest import need
 
+from monitor.canvas.layout import LEFT_PX, RIGHT_PX
+
 HERE = Path(__file__).parent
 CHILD = HERE / "live_window_child.py"
 
@@ -71,6 +73,9 @@ def test_window_draws_a_live_pipeline_and_survives_close_and_errors(xvfb):
     assert report["frozen_holds_view"] and report["unfrozen_moves_on"], report
     assert report["window_after_double"] == 4.0, report
     assert report["lanes_in_overlay"] == 1 and report["lanes_after_overlay"] == 3, report
+    assert report["size_after_resize"] == [1100, 720], report
+    assert report["lane_width_after_resize"] == 1100 - LEFT_PX - RIGHT_PX, report
+    assert report["lane0_filtered_px_after_resize"] > 100, report
     assert report["closed_by_user"] and report["close_reason"] == "the plot window was closed"
     assert report["samples_while_closed"] > 50, report           # 250 Hz for 0.5 s
     assert report["reopen"] is None and report["frames_after_reopen"] >= 5, report
