@@ -30,20 +30,11 @@ import threading
 import time
 from collections.abc import Callable
 
+from monitor.bench.core import CHAIN_TEXT  # the same chain as the core bench
+
 SOURCE = "sim://?rate=1000&channels=8"
 RATE_HZ = 1000.0
-CHAIN_TEXT = """\
-[[stage]]
-kind = "notch"
-freq_hz = 50.0
-q = 30.0
-
-[[stage]]
-kind = "butterworth"
-band = "lowpass"
-order = 4
-cutoff_hz = 40.0
-"""
+BUTTERWORTH_STAGE = 2          # file index of the Butterworth in core's chain
 TARGET_CPU_PERCENT = 15.0
 TARGET_KEY_MS = 100.0
 COLUMNS, ROWS = 160, 48
@@ -127,6 +118,17 @@ def measure_cpu(warmup_s: float, window_s: float) -> dict[str, float]:
     }
 
 
+async def _wait(ready: Callable[[], object], timeout_s: float = 20.0) -> None:
+    """Let the app run until `ready()` is true; RuntimeError after `timeout_s`."""
+    import asyncio
+
+    end = time.monotonic() + timeout_s
+    while not ready():
+        if time.monotonic() > end:
+            raise RuntimeError("the UI did not show the chain's stages in time")
+        await asyncio.sleep(0.02)
+
+
 def _watch(done: Callable[[], bool], seen: threading.Event, stamp: list[float]) -> None:
     """Poll `done()` every 0.5 ms; note the time it first holds, then set `seen`."""
     while not seen.is_set():
@@ -153,19 +155,16 @@ def measure_key_to_chain(presses: int) -> list[float]:
     times_ms: list[float] = []
 
     def cutoff_running() -> float:
-        return float(pipeline.chain.spec.stages[1].params["cutoff_hz"])
+        return float(pipeline.chain.spec.stages[BUTTERWORTH_STAGE].params["cutoff_hz"])
 
     async def scenario() -> None:
         app = TunetraceApp(pipeline, argparse.Namespace(verb="live"))
         async with app.run_test(size=(COLUMNS, ROWS)) as pilot:
-            stages = app.query_one("#stages")
-            while len(stages.indices) < 2 or app.query_one("#form").target is None:
-                await asyncio.sleep(0.02)
-            stages.highlighted = 1                             # the Butterworth stage
-            while (app.query_one("#form").target is None
-                   or app.query_one("#form").target.index != 1
-                   or not app.query("#field-cutoff_hz")):
-                await asyncio.sleep(0.02)
+            stages, form = app.query_one("#stages"), app.query_one("#form")
+            await _wait(lambda: len(stages.indices) > BUTTERWORTH_STAGE and form.target)
+            stages.highlighted = stages.indices.index(BUTTERWORTH_STAGE)
+            await _wait(lambda: form.target is not None and form.target.index == BUTTERWORTH_STAGE
+                        and bool(app.query("#field-cutoff_hz")))
             for i in range(presses):
                 wanted = 30.0 + (i % 2) * 5.0 + 0.25 * i
                 field = app.query_one("#field-cutoff_hz")

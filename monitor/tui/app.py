@@ -81,6 +81,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         self._last_status: Any = None
         self._last_state = "connecting"
         self._view_held = False
+        self._refresh_timers: list[Any] = []
 
     # -- layout -----------------------------------------------------------------------------
 
@@ -95,8 +96,8 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         yield Footer()
 
     def on_mount(self) -> None:
-        self.set_interval(1 / TRACE_HZ, self.refresh_trace)
-        self.set_interval(1 / TABLE_HZ, self.refresh_table)
+        self._refresh_timers = [self.set_interval(1 / TRACE_HZ, self.refresh_trace),
+                        self.set_interval(1 / TABLE_HZ, self.refresh_table)]
         duration = getattr(self.args, "duration", None)
         if duration:
             self.set_timer(float(duration), self.action_quit_session)
@@ -262,6 +263,9 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
     # -- view actions ------------------------------------------------------------------------
 
     def action_quit_session(self) -> None:
+        for timer in [*self._refresh_timers, self._plot_timer]:
+            if timer is not None:
+                timer.stop()                # no refresh may run while the screen unmounts
         self.exit(0)
 
     def action_show_help(self) -> None:
