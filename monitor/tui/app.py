@@ -16,6 +16,7 @@ import argparse
 import math
 import os
 import sys
+import time
 from typing import Any
 
 from textual.app import App, ComposeResult
@@ -191,6 +192,10 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
             self.say(status.notice)
         if not status.recording:
             self.ui.recording_started = None
+        elif self.ui.recording_started is None:     # started by --record, with the stream
+            from_start = status.recording == getattr(self.args, "record", None)
+            self.ui.recording_started = (status.started_monotonic if from_start
+                                         else time.monotonic())
 
     def _sync_chain(self) -> None:
         self.session.sync()

@@ -214,12 +214,14 @@ def starting_params(kind: str, rate_hz: float) -> dict[str, Any]:
     These are only a starting point for the user to edit: cutoffs at a tenth of
     Nyquist, Q of a Butterworth pair (1/sqrt 2), order 2, a 5-sample window.
     """
-    nyquist = rate_hz / 2
-    cutoff = round(nyquist / 10, 3)
+    def two_digits(x: float) -> float:   # 25.006 Hz is shown as 25 Hz
+        return float(f"{x:.2g}")
+
+    cutoff = two_digits(rate_hz / 20)
     by_key: dict[str, Any] = {
         "cutoff_hz": cutoff, "centre_hz": cutoff, "freq_hz": cutoff, "q": 0.7071,
-        "order": 2, "low_hz": round(cutoff / 2, 3), "high_hz": round(cutoff * 2, 3),
-        "ripple_db": 1.0, "window": 5, "alpha": 0.1, "time_constant_s": round(10 / rate_hz, 4),
+        "order": 2, "low_hz": two_digits(cutoff / 2), "high_hz": two_digits(cutoff * 2),
+        "ripple_db": 1.0, "window": 5, "alpha": 0.1, "time_constant_s": two_digits(10 / rate_hz),
     }
     info = KINDS[kind]
     if not info.alternatives:

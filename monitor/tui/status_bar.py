@@ -80,8 +80,6 @@ def status_lines(status: Any, ui: UiState) -> tuple[str, str]:
              f"frames {status.frames}  bad {status.bad}  dropped {status.dropped}")
     if ui.playback:
         line1 += f"  {ui.playback}"
-    if getattr(status, "ring_overflow", 0):
-        line1 += f"  overflow {status.ring_overflow}"
     flags = []
     if status.paused:
         flags.append("VIEW HELD")
