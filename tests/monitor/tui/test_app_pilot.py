@@ -343,3 +343,38 @@ def test_a_vanishing_source_is_said_and_the_session_goes_on(start_pipeline, pty_
             assert await until(pilot, lambda: app.return_value == 0)
 
     run(scenario())
+
+
+def test_components_give_derived_values_and_a_poor_method_warns(start_pipeline):
+    pipeline = start_pipeline(parse_chain(CHAIN))
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            await highlight_stage(pilot, app, 2)                  # rc-lowpass of load
+            derived = app.query_one("#form-derived")
+            app.query_one("#field-cutoff_hz").value = ""
+            await type_into(pilot, app, "#field-r_ohm", "10000")
+            await type_into(pilot, app, "#field-c_farad", "1e-6")
+            # Handbook RC low-pass: fc = 1 / (2 pi R C) = 15.915 Hz for 10 kohm and 1 uF.
+            assert await until(pilot, lambda: "cutoff_hz = 15.915" in str(derived.render()))
+            assert "time_constant_s = 0.01" in str(derived.render())
+            await pilot.press("enter")
+            assert await until(pilot, lambda: pipeline.chain.spec.stages[2].params
+                               == {"r_ohm": 10000.0, "c_farad": 1e-6})
+            running = dict(pipeline.chain.designs_for("load"))[2]
+            assert abs(running.derived["cutoff_hz"] - 1 / (2 * np.pi * 1e4 * 1e-6)) < 1e-9
+            # a discretization far from the prototype at this rate is flagged, not refused
+            await pilot.press("escape")
+            await highlight_stage(pilot, app, 2)
+            app.query_one("#field-r_ohm").value = ""
+            app.query_one("#field-c_farad").value = ""
+            await type_into(pilot, app, "#field-cutoff_hz", "100")
+            app.query_one("#field-method").value = "matched"
+            warnings = app.query_one("#form-warnings")
+            assert await until(pilot, lambda: "too long for matched" in str(warnings.render()))
+            assert await until(pilot, lambda: pipeline.chain.spec.stages[2].params.get("method")
+                               == "matched")
+            await pilot.press("escape", "q")
+
+    run(scenario())
