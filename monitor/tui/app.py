@@ -5,7 +5,7 @@ beside its stage list and parameter form; two status lines; the footer.
 
 Threads: the pipeline's reader thread never waits on the UI. The UI polls
 `ring.latest(n)` and `status()` from timers on textual's event loop (trace at
-10 Hz, table and status at 4 Hz) and talks back only through
+10 Hz, table and status at 2 Hz) and talks back only through
 `pipeline.submit(...)`. Edits build and validate the new ChainSet here in the
 UI thread, so a refused edit never reaches the reader.
 """
@@ -33,17 +33,16 @@ from monitor.tui.help_screen import HelpScreen
 from monitor.tui.keys import ACTIONS, CHANNEL_KEYS
 from monitor.tui.palette import SessionCommands
 from monitor.tui.param_form import FormTarget, ParamForm
+from monitor.tui.plot_actions import NO_DISPLAY, PlotActions
 from monitor.tui.session import ChainSession
 from monitor.tui.status_bar import StatusBar, UiState
 from monitor.tui.trace import WINDOWS_S, TraceView
 
 TRACE_HZ = 10.0
 TABLE_HZ = 2.0
-PLOT_HZ = 60.0
 STATS_MAX_S = 10.0           # the table's statistics cover the trace window, at most this long
 DEFAULT_WINDOW_S = 5.0
 DEFAULT_ANALYSIS_HZ = 1.0    # lag is read where a weighing or control band usually lives
-NO_DISPLAY = "no display (DISPLAY is unset): the plot window is not opened"
 
 
 def _bindings() -> list[Binding]:
@@ -53,7 +52,7 @@ def _bindings() -> list[Binding]:
     return bindings
 
 
-class TunetraceApp(ChainActions, FileActions, App[int]):
+class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
     """The live session on one pipeline; `args` are the CLI options of live/demo/replay."""
 
     TITLE = "tunetrace"
@@ -74,7 +73,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
                           analysis_hz=float(getattr(args, "analysis_hz", None)
                                             or DEFAULT_ANALYSIS_HZ))
         self.selected = 0
-        self.plot: Any = None
+        self.plot: Any = None                       # monitor.canvas.LivePlot once opened
         self._plot_timer: Any = None
         self._plot_waiting = False
         self._plot_reported = False
@@ -82,6 +81,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         self._last_status: Any = None
         self._last_state = "connecting"
         self._view_held = False
+        self._pipeline_notice: str | None = None
         self._refresh_timers: list[Any] = []
 
     # -- layout -----------------------------------------------------------------------------
@@ -98,7 +98,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
 
     def on_mount(self) -> None:
         self._refresh_timers = [self.set_interval(1 / TRACE_HZ, self.refresh_trace),
-                        self.set_interval(1 / TABLE_HZ, self.refresh_table)]
+                                self.set_interval(1 / TABLE_HZ, self.refresh_table)]
         duration = getattr(self.args, "duration", None)
         if duration:
             self.set_timer(float(duration), self.action_quit_session)
@@ -140,7 +140,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
                                                  span, caption)
 
     def refresh_table(self) -> None:
-        """4 Hz: the channel table and the status lines."""
+        """2 Hz: the channel table and the status lines."""
         status = self.pipeline.status()
         self._last_status = status
         self._status_extras(status)
@@ -187,7 +187,7 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
             self.ui.playback = f"at {getattr(source, 'position_s', 0.0):.1f} s, {shown}"
         notes = [n for n in (status.error, status.chain_note, status.warning) if n]
         self.ui.sticky = notes                          # shown while they hold
-        if status.notice and status.notice != getattr(self, "_pipeline_notice", None):
+        if status.notice and status.notice != self._pipeline_notice:
             self._pipeline_notice = status.notice
             self.say(status.notice)
         if not status.recording:
@@ -327,54 +327,6 @@ class TunetraceApp(ChainActions, FileActions, App[int]):
         body = (f"{status.bad} frames rejected so far.\n\nlatest: {status.last_bad!r}\n"
                 f"why: {status.last_bad_reason or 'unknown'}")
         self.push_screen(ShowText("Latest rejected frame", body))
-
-    def action_open_plot(self) -> None:
-        if self.plot is not None and self.plot.is_open:
-            self.say("the plot window is already open")
-            return
-        if not os.environ.get("DISPLAY"):
-            self.say(NO_DISPLAY)
-            return
-        ring = self.pipeline.ring
-        if ring is None or ring.total < 2 or self.pipeline.rate() is None:
-            if not self._plot_waiting:            # try again once data flows
-                self._plot_waiting = True
-                self.say("the plot window opens once samples arrive")
-                self.set_timer(0.5, self._retry_plot)
-            return
-        try:
-            from monitor.canvas import LivePlot
-        except ImportError as exc:
-            self.say(f"the plot window is not available: {exc}")
-            return
-        if self.plot is None:
-            self.plot = LivePlot(self.pipeline, lambda: self.selected)
-        why = self.plot.open()
-        if why is not None:
-            self.say(why)
-            return
-        self._plot_reported = False
-        if self._plot_timer is None:
-            self._plot_timer = self.set_interval(1 / PLOT_HZ, self._pump_plot)
-        self.say("plot window open")
-
-    def _retry_plot(self) -> None:
-        self._plot_waiting = False
-        self.action_open_plot()
-
-    def _pump_plot(self) -> None:
-        """60 Hz: let the plot draw a frame if one is due; say once why it closed."""
-        if self.plot is None:
-            return
-        if self.plot.is_open:
-            self.plot.pump()
-        elif not self._plot_reported:
-            self._plot_reported = True
-            self.say(f"{self.plot.reason or 'the plot window closed'}; o opens it again")
-
-    def on_unmount(self) -> None:
-        if self.plot is not None:
-            self.plot.close("the session ended")
 
     @property
     def is_replay(self) -> bool:
