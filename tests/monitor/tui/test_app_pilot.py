@@ -9,6 +9,7 @@ import re
 import numpy as np
 import pytest
 from scipy import signal
+from textual.command import CommandPalette
 from tui_helpers import asking, make_app, until
 
 from filters.chainfile import format_chain, parse_chain
@@ -280,6 +281,15 @@ def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline
             assert any("record" in hit.text for hit in hits)
             found = [hit async for hit in provider.discover()]
             assert len(found) == len(ACTIONS)
+            # through textual's palette itself: ctrl+p, a few letters, enter runs the action
+            await pilot.press("ctrl+p")
+            assert await until(pilot, lambda: CommandPalette.is_open(app))
+            await pilot.press(*"lag frequency")
+            await pilot.pause(0.5)                                 # the palette searches
+            await pilot.press("enter")
+            assert await until(pilot, lambda: asking(app))
+            assert "lag is computed" in str(app.screen.query_one("Label").render())
+            await pilot.press("escape")
             await pilot.press("q")
 
     run(scenario())
