@@ -48,7 +48,7 @@ def row_cells(row: ChannelRow) -> tuple[str, ...]:
     return (
         row.name, row.unit or "-", _number(row.last), _number(row.mean),
         _number(row.rms_raw, 4), _number(row.rms_filtered, 4),
-        "-" if not math.isfinite(row.reduction_db) else f"{row.reduction_db:.1f}",
+        ("-" if math.isnan(row.reduction_db) else f"{row.reduction_db:.1f}"),  # inf: all removed
         "-" if not math.isfinite(row.lag_ms) else f"{row.lag_ms:.1f}",
         _number(row.rate_hz, 4),
     )

@@ -53,9 +53,8 @@ class FileActions:
         if self.pipeline.schema is None:
             self.say("nothing to record yet: no frames have arrived")
             return
-        prefix = "weigh" if getattr(self.args, "verb", None) == "demo" else "tunetrace"
         self.push_screen(AskValue(
-            "Record every raw sample to this CSV file:", proposed_recording_name(prefix),
+            "Record every raw sample to this CSV file:", proposed_recording_name(self._prefix()),
             hint="an existing file is never overwritten; esc cancels"), self.start_recording)
 
     def start_recording(self, path: str | None) -> bool:
@@ -83,6 +82,10 @@ class FileActions:
         self.say(f"recording to {path}")
         return True
 
+    def _prefix(self) -> str:
+        """Proposed file names start with the demo's scenario, else with the tool's name."""
+        return "weigh" if getattr(self.args, "verb", None) == "demo" else "tunetrace"
+
     def _chain_text(self) -> str:
         from filters.chainfile import format_chain
 
@@ -91,7 +94,7 @@ class FileActions:
     # -- chain files -------------------------------------------------------------------------
 
     def action_save_chain(self) -> None:
-        default = getattr(self.args, "chain", None) or "weigh-chain.toml"
+        default = getattr(self.args, "chain", None) or f"{self._prefix()}-chain.toml"
         self.push_screen(AskValue(
             "Save the whole chain to this file:", str(default),
             hint="an existing file is replaced only if you confirm its name twice"),

@@ -290,7 +290,7 @@ def derived_text(design: Any, analysis_hz: float) -> str:
              if isinstance(value, int | float)]
     try:
         corner = analysis.minus3db_hz(design)
-    except (TypeError, ValueError):
+    except ValueError:
         corner = None
     if corner is not None:
         lines.append(f"-3 dB at {corner:.4g} Hz")

@@ -388,3 +388,28 @@ def test_components_give_derived_values_and_a_poor_method_warns(start_pipeline):
             await pilot.press("escape", "q")
 
     run(scenario())
+
+
+def test_shared_scope_edits_every_channel_of_a_shared_stage(start_pipeline):
+    pipeline = start_pipeline(parse_chain(CHAIN))
+
+    def notch_bypassed(channel: str) -> bool:
+        return [s.bypass for _, s in pipeline.chain.spec.stages_for(channel)
+                if s.kind == "notch"] == [True]
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            await highlight_stage(pilot, app, 1)                  # notch of load and current
+            assert "shared with current" in str(app.query_one("#form-head").render())
+            await pilot.press("e")
+            assert app.ui.scope == "shared" and "every channel" in app.ui.notice
+            await pilot.press("b")
+            assert await until(pilot, lambda: notch_bypassed("load") and notch_bypassed("current"))
+            assert len(pipeline.chain.spec.stages) == 3           # edited in place, not split
+            await pilot.press("e", "b")                           # back to this channel only
+            assert await until(pilot, lambda: not notch_bypassed("load"))
+            assert notch_bypassed("current")
+            await pilot.press("q")
+
+    run(scenario())
