@@ -54,5 +54,9 @@ def use(kind: str):
         needs = ("Mesa's EGL (Debian: libegl1 libegl-mesa0 libgl1-mesa-dri)" if kind == HEADLESS
                  else "the glfw package and a working X display")
         raise BackendUnavailable(f"cannot draw through {kind} ({exc}); install {needs}") from exc
+    if kind == WINDOW:
+        # The terminal UI owns the terminal: vispy's log lines would tear its screen.
+        # Failures reach LivePlot as exceptions and are shown as its reason instead.
+        vispy.set_log_level("critical")
     _chosen = kind
     return application

@@ -64,6 +64,9 @@ class PlotCanvas:
         self.title = title
         self.canvas = scene.SceneCanvas(size=size, show=show, title=title, keys=None,
                                         bgcolor=palette.PANEL, app=app, resizable=show)
+        # vispy would log an exception in a draw or input handler and carry on; let it
+        # reach the caller instead (LivePlot.pump closes the plot with the reason).
+        self.canvas.events.ignore_callback_errors = False
         self.size = (int(size[0]), int(size[1]))
         self.resized_to: tuple[int, int] | None = None   # set by a window resize, see resize()
         self._offscreen = None   # vispy FrameBuffer for render(), made on first use

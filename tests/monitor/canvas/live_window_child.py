@@ -152,6 +152,16 @@ def main() -> int:
         plot.get_selected_channel = lambda: 0
         out["reopen_after_error"] = plot.open()
         pump_for(plot, 0.3)
+
+        # an error inside vispy's drawing reaches pump() too, not just a log line
+        def broken_draw(event) -> None:
+            raise ValueError("shader trouble")
+
+        plot.canvas.canvas.events.draw.connect(broken_draw)
+        pump_for(plot, 0.2)
+        out["draw_error_reason"] = plot.reason
+        out["reopen_after_draw_error"] = plot.open()
+        pump_for(plot, 0.2)
         plot.close()
         out["closed"] = not plot.is_open
 

@@ -83,6 +83,8 @@ def test_window_draws_a_live_pipeline_and_survives_close_and_errors(xvfb):
     assert "selection failed" in report["error_reason"], report
     assert report["samples_after_error"] > 30 and report["pipeline_alive"], report
     assert report["reopen_after_error"] is None and report["closed"], report
+    assert "shader trouble" in report["draw_error_reason"], report
+    assert report["reopen_after_draw_error"] is None, report
     assert "already draws through glfw" in report["second_backend"], report
 
 
