@@ -39,3 +39,17 @@ def test_layout_stacks_lanes_above_spectrum_and_response_without_overlap():
 def test_layout_refuses_a_tiny_canvas():
     with pytest.raises(ValueError, match="size = 100x100"):
         compute_layout((100, 100), 1)
+
+
+def test_autoscale_keeps_its_range_while_the_data_fits_and_fills_it():
+    from monitor.canvas.time_panel import autoscale
+
+    first = autoscale(0.0, 10.0)
+    assert first[0] < 0.0 and first[1] > 10.0
+    assert autoscale(0.5, 9.5, first) == first           # noise inside: axes stay still
+    grown = autoscale(0.0, 12.0, first)
+    assert grown[1] > 12.0                                # data outside: grows at once
+    shrunk = autoscale(4.0, 5.0, grown)
+    assert shrunk[1] - shrunk[0] < 2.0                    # data much smaller: shrinks
+    assert autoscale(3.0, 3.0) == (3.0 - 0.5, 3.0 + 0.5)  # flat: a range still shows it
+    assert autoscale(float("nan"), float("nan")) == (-1.0, 1.0)
