@@ -38,18 +38,17 @@ def trace_rows(raw: np.ndarray, filtered: np.ndarray, span_s: float, width: int,
     low, high = value_range([raw, filtered])
     codes, owner = render_cells([raw, filtered], plot_w, plot_h, low, high)
     labels = {0: _label(high), plot_h // 2: _label((low + high) / 2), plot_h - 1: _label(low)}
-    rows = []
-    for r, text in enumerate(cell_text(codes)):
-        segments = [Segment(labels.get(r, " " * LABEL_WIDTH), AXIS_STYLE)]
-        who = owner[r]
-        # one segment per run of cells drawn by the same series
-        edges = np.flatnonzero(np.diff(who)) + 1
-        starts = np.r_[0, edges]
-        ends = np.r_[edges, len(who)]
-        for a, b in zip(starts.tolist(), ends.tolist(), strict=True):
-            series = int(who[a])
-            segments.append(Segment(text[a:b], SERIES_STYLES[series] if series >= 0 else None))
-        rows.append(segments)
+    texts = cell_text(codes)
+    rows = [[Segment(labels.get(r, " " * LABEL_WIDTH), AXIS_STYLE)] for r in range(plot_h)]
+    # one segment per run of cells drawn by the same series, found for all rows at once
+    change = np.ones(owner.shape, dtype=bool)
+    change[:, 1:] = owner[:, 1:] != owner[:, :-1]
+    run_row, run_start = np.nonzero(change)
+    run_end = np.r_[run_start[1:], plot_w]
+    run_end[np.r_[run_row[1:] != run_row[:-1], True]] = plot_w
+    for r, a, b, series in zip(run_row.tolist(), run_start.tolist(), run_end.tolist(),
+                               owner[run_row, run_start].tolist(), strict=True):
+        rows[r].append(Segment(texts[r][a:b], SERIES_STYLES[series] if series >= 0 else None))
     left = f"{'':{LABEL_WIDTH}}-{span_s:.3g} s   raw "
     legend = [Segment(left, AXIS_STYLE), Segment("\u28ff", RAW_STYLE),
               Segment("  filtered ", AXIS_STYLE), Segment("\u28ff", FILTERED_STYLE)]
@@ -91,7 +90,9 @@ class TraceView(Widget):
             self._strips = [Strip([Segment("waiting for samples...", AXIS_STYLE)])]
             return
         rows = trace_rows(self._raw, self._filtered, self._span_s, width, height)
-        self._strips = [Strip(row).crop_extend(0, width, None) for row in rows]
+        # every row is exactly `width` cells (braille and labels are one cell per character)
+        self._strips = [Strip(row, width) for row in rows[:-1]]
+        self._strips.append(Strip(rows[-1]).crop_extend(0, width, None))   # the legend row
 
     def render_line(self, y: int) -> Strip:
         if self._drawn_size != (self.content_size.width, self.content_size.height):

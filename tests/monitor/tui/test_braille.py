@@ -62,3 +62,18 @@ def test_value_range_pads_and_survives_flat_and_empty_input():
     low, high = value_range([np.array([5.0, 5.0])])
     assert low < 5 < high
     assert value_range([np.array([])]) == (-1.0, 1.0)
+
+
+def test_trace_rows_fill_the_width_and_style_each_series():
+    from monitor.tui.trace import FILTERED_STYLE, RAW_STYLE, trace_rows
+
+    t = np.linspace(0, 1, 2000)
+    filtered = np.sin(2 * np.pi * 2 * t)
+    raw = filtered + np.where(np.arange(2000) % 97 == 0, 3.0, 0.0)      # spikes above
+    rows = trace_rows(raw, filtered, 1.0, width=80, height=20)
+    assert len(rows) == 20
+    assert {sum(len(s.text) for s in row) for row in rows[:-1]} == {80}
+    styles = {s.style for row in rows[:-1] for s in row if s.text.strip()}
+    assert RAW_STYLE in styles and FILTERED_STYLE in styles
+    legend = "".join(s.text for s in rows[-1])
+    assert legend.rstrip().endswith("now") and "raw" in legend and "filtered" in legend
