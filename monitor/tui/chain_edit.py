@@ -3,12 +3,13 @@
 A chain file is a flat list of stages, each selecting some channels (or all).
 The UI edits "the selected channel's chain", i.e. the stages that select it.
 
-Scope rule (documented in DEVELOPERS.md): by default an edit is made for the
-selected channel only. When the stage it touches also runs on other channels,
-the stage is first *split*: a copy selecting only this channel takes the
-edit, and the original keeps running, unchanged, on the other channels. With
-scope SHARED the edit goes to the stage itself and so reaches every channel
-that stage selects; the UI shows which channels those are.
+Scope rule: by default an edit is made for the selected channel only. When
+the stage it touches also runs on other channels, the stage is first *split*:
+a copy selecting only this channel takes the edit, and the original keeps
+running, unchanged, on the other channels. With scope SHARED the edit goes to
+the stage itself and so reaches every channel that stage selects; the UI
+shows which channels those are (stage list and form) and the scope in the
+status line (key e toggles it).
 
 Every function is pure: it takes a ChainSpec and returns a new one.
 """
