@@ -24,6 +24,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.widgets import Footer, OptionList
 
+from monitor.errors import UserError
 from monitor.tui.chain_actions import ChainActions
 from monitor.tui.chain_editor import StageList
 from monitor.tui.channel_table import ChannelRow, ChannelTable
@@ -335,7 +336,15 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
 
 
 def run_app(pipeline: Any, args: argparse.Namespace) -> int:
-    """Run the terminal UI on `pipeline` until the user quits; stops the pipeline. Exit status."""
+    """Run the terminal UI on `pipeline` until the user quits; stops the pipeline. Exit status.
+
+    Raises UserError (after stopping the pipeline) when there is no terminal to
+    run in: stdin or stdout redirected, or stdin being the data stream itself.
+    """
+    problem = _no_terminal(pipeline)
+    if problem:
+        pipeline.stop()
+        raise UserError(problem)
     try:
         pipeline.start()
     except RuntimeError:
@@ -350,3 +359,14 @@ def run_app(pipeline: Any, args: argparse.Namespace) -> int:
         if problem:
             print(f"tunetrace: {problem}", file=sys.stderr)
     return int(result or 0)
+
+
+def _no_terminal(pipeline: Any) -> str | None:
+    """Why the UI cannot run here (one sentence), or None."""
+    if getattr(getattr(pipeline.source, "byte_source", None), "is_stdin", False):
+        return ("the stream comes on stdin, so the terminal UI has no keyboard; "
+                "give --plain for stats lines instead.")
+    if not (sys.stdin.isatty() and sys.stdout.isatty()):
+        return ("the terminal UI needs a terminal on stdin and stdout; "
+                "give --plain for stats lines instead.")
+    return None

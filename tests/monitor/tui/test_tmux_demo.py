@@ -71,3 +71,14 @@ def test_demo_in_tmux_shows_changing_values_and_quits_with_status_0(tmp_path):
         assert exit_file.read_text().strip() == "EXIT=0"
     finally:
         subprocess.run([*base, "kill-server"], capture_output=True, timeout=10)
+
+
+def test_without_a_terminal_the_ui_says_to_use_plain():
+    done = subprocess.run(["tunetrace", "demo"], stdin=subprocess.DEVNULL, capture_output=True,
+                          text=True, timeout=30)
+    assert done.returncode == 2
+    assert "needs a terminal" in done.stderr and "--plain" in done.stderr
+    assert "Traceback" not in done.stderr
+    done = subprocess.run(["tunetrace", "live", "-"], input="load[kg]\n1.0\n",
+                          capture_output=True, text=True, timeout=30)
+    assert done.returncode == 2 and "stdin" in done.stderr and "--plain" in done.stderr
