@@ -6,7 +6,10 @@ reference, in a child process too, is the offline upper bound of DESIGN.md:
 numpy.loadtxt of the whole file, one scipy.signal.sosfilt over the whole
 array (the chain's linear stages; a median has no one-call equivalent) and
 numpy.savetxt of the same output table ('%.17g', round-trip exact like ours).
-Peak memory is each child's ru_maxrss (os.wait4).
+Peak memory is each child's own high-water mark (VmHWM of /proc/self/status,
+printed by the child as it ends). ru_maxrss from wait4 would not do: Linux
+carries the parent's high-water mark across fork and exec into the child's
+figure, so a large bench process made every child look as large as itself.
 
 replay: a ReplaySource at speed max feeding a Pipeline (no chain); lines per
 second counted as samples reaching the ring, best of REPLAY_REPEATS runs.
@@ -58,6 +61,19 @@ filtered = signal.sosfilt(sos, data[:, 1:], axis=0)
 np.savetxt(out, np.hstack([data, filtered]), delimiter=",", fmt="%.17g")
 """
 
+# Appended to each child's code: report this process's own peak resident memory.
+PEAK_REPORT = """
+for _line in open("/proc/self/status"):
+    if _line.startswith("VmHWM:"):
+        sys.stderr.write("peak_kb %s\\n" % _line.split()[1])
+"""
+
+APPLY_CHILD = """\
+import sys
+from monitor.cli import main
+code = main(sys.argv[1:])
+""" + PEAK_REPORT + "sys.exit(code)\n"
+
 
 def write_bench_recording(path: str, lines: int, channels: int = CHANNELS) -> int:
     """A weigh-station-like recording (our format) of `lines` rows; returns its header lines."""
@@ -93,7 +109,9 @@ def run_child(argv: list[str]) -> tuple[float, float]:
     proc.returncode = os.waitstatus_to_exitcode(status)
     if proc.returncode != 0:
         raise OSError(f"{' '.join(argv[:4])} failed: {err.strip()[-300:]}")
-    return seconds, usage.ru_maxrss / 1024.0        # Linux reports kilobytes
+    reported = [line.split()[1] for line in err.splitlines() if line.startswith("peak_kb ")]
+    peak_kb = float(reported[-1]) if reported else float(usage.ru_maxrss)  # both kilobytes
+    return seconds, peak_kb / 1024.0
 
 
 def measure_replay(path: str, lines: int) -> float:
@@ -124,9 +142,9 @@ def run(quick: bool) -> dict[str, float | int | bool]:
         with open(chain, "w", encoding="utf-8") as f:
             f.write(CHAIN_TEXT)
         skip = write_bench_recording(src, lines)
-        apply_s, apply_rss = run_child([sys.executable, "-m", "monitor", "apply", src,
+        apply_s, apply_rss = run_child([sys.executable, "-c", APPLY_CHILD, "apply", src,
                                         "--chain", chain, "-o", os.path.join(tmp, "out.csv")])
-        ref_s, ref_rss = run_child([sys.executable, "-c", REFERENCE, src,
+        ref_s, ref_rss = run_child([sys.executable, "-c", REFERENCE + PEAK_REPORT, src,
                                     os.path.join(tmp, "ref.csv"), str(skip), str(RATE_HZ)])
         # the least disturbed of a few runs: other processes share this machine
         replay_rate = max(measure_replay(src, lines) for _ in range(REPLAY_REPEATS))
