@@ -186,7 +186,7 @@ def measure_key_to_chain(presses: int) -> list[float]:
                 seen.set()
                 watcher.join(1)
                 times_ms.append(1000.0 * (stamp[0] - t0) if stamp else float("inf"))
-            await pilot.press("q")
+            await pilot.press("escape", "q")                 # leave the field, quit
 
     try:
         asyncio.run(scenario())

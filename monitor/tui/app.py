@@ -84,17 +84,23 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
         self._view_held = False
         self._pipeline_notice: str | None = None
         self._refresh_timers: list[Any] = []
+        self.table: ChannelTable | None = None
+        self.trace: TraceView | None = None
+        self.status_bar: StatusBar | None = None
 
     # -- layout -----------------------------------------------------------------------------
 
     def compose(self) -> ComposeResult:
-        yield ChannelTable(id="channels")
+        # kept by reference: the timers use them, also while the screen is torn down
+        self.table, self.trace, self.status_bar = (
+            ChannelTable(id="channels"), TraceView(id="trace"), StatusBar(id="status"))
+        yield self.table
         with Horizontal(id="middle"):
-            yield TraceView(id="trace")
+            yield self.trace
             with Vertical(id="side"):
                 yield StageList(id="stages")
                 yield ParamForm(id="form")
-        yield StatusBar(id="status")
+        yield self.status_bar
         yield Footer()
 
     def on_mount(self) -> None:
@@ -103,7 +109,7 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
         duration = getattr(self.args, "duration", None)
         if duration:
             self.set_timer(float(duration), self.action_quit_session)
-        self.query_one("#channels", ChannelTable).focus()
+        self.table.focus()
         if os.environ.get("DISPLAY"):
             self.action_open_plot()
         else:
@@ -137,7 +143,7 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
         caption = f"{self.channel} [{unit}]  last {self.ui.window_s:g} s" if unit else (
             f"{self.channel}  last {self.ui.window_s:g} s")
         span = float(snapshot.t_host[-1] - snapshot.t_host[0])
-        self.query_one("#trace", TraceView).show(snapshot.raw[:, c], snapshot.filtered[:, c],
+        self.trace.show(snapshot.raw[:, c], snapshot.filtered[:, c],
                                                  span, caption)
 
     def refresh_table(self) -> None:
@@ -145,7 +151,7 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
         status = self.pipeline.status()
         self._last_status = status
         self._status_extras(status)
-        self.query_one("#status", StatusBar).show(status, self.ui)
+        self.status_bar.show(status, self.ui)
         ring = self.pipeline.ring
         if ring is None or not self.session.channels:
             return
@@ -167,7 +173,7 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
                 lag_ms=self.session.lag_ms(name, self.ui.analysis_hz),
                 rate_hz=status.rate_hz or math.nan,
             ))
-        self.query_one("#channels", ChannelTable).show(rows)
+        self.table.show(rows)
 
     STATE_NOTICES = {
         "reconnecting": "the source went away; reconnecting (nothing received is lost)",
@@ -263,8 +269,8 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
     def say(self, message: str) -> None:
         """Show one sentence in the status line (it stays until the next message)."""
         self.ui.notice = message
-        for bar in self.query("#status").results(StatusBar):
-            bar.show(self._last_status, self.ui)
+        if self.status_bar is not None and self.status_bar.is_mounted:
+            self.status_bar.show(self._last_status, self.ui)
 
     # -- view actions ------------------------------------------------------------------------
 
@@ -278,13 +284,13 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
         self.push_screen(HelpScreen())
 
     def action_focus_table(self) -> None:
-        self.query_one("#channels", ChannelTable).focus()
+        self.table.focus()
 
     def action_select_channel(self, index: int) -> None:
         if index >= len(self.session.channels):
             self.say(f"there is no channel {index + 1}")
             return
-        self.query_one("#channels", ChannelTable).move_cursor(row=index)
+        self.table.move_cursor(row=index)
         self.selected = index
         self.show_chain()
         self.refresh_trace()

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from scipy import signal
 from textual.command import CommandPalette
-from tui_helpers import asking, make_app, until
+from tui_helpers import answer, asking, make_app, until
 
 from filters.chainfile import format_chain, parse_chain
 from filters.design import design_stage
@@ -229,32 +229,26 @@ def test_malformed_chain_file_is_refused_and_a_saved_one_loads(start_pipeline, t
     bad = tmp_path / "bad.toml"
     bad.write_text('[[stage]]\nkind = "rc-lowpass"\ncutoff_hz = "eight"\n')
 
-    async def ask(pilot, app, key: str, answer: str) -> None:
-        await pilot.press(key)
-        assert await until(pilot, lambda: asking(app))
-        app.screen.query_one("#answer").value = answer
-        await pilot.press("enter")
-
     async def scenario():
         app = make_app(pipeline)
         async with app.run_test(size=SIZE) as pilot:
             before = pipeline.chain
-            await ask(pilot, app, "l", str(bad))
+            await answer(pilot, app, "l", str(bad))
             assert await until(pilot, lambda: "running chain goes on" in app.ui.notice)
             assert "stage 1" in app.ui.notice
             await pilot.pause(0.2)
             assert pipeline.chain is before
-            await ask(pilot, app, "l", str(tmp_path / "missing.toml"))
+            await answer(pilot, app, "l", str(tmp_path / "missing.toml"))
             assert await until(pilot, lambda: "cannot read" in app.ui.notice)
             assert pipeline.chain is before
             saved = tmp_path / "saved.toml"
-            await ask(pilot, app, "s", str(saved))
+            await answer(pilot, app, "s", str(saved))
             assert await until(pilot, lambda: saved.exists())
             assert parse_chain(saved.read_text()) == parse_chain(format_chain(before.spec))
             # a different valid chain loads and runs
             other = tmp_path / "other.toml"
             other.write_text('[[stage]]\nkind = "ema"\nalpha = 0.25\n')
-            await ask(pilot, app, "l", str(other))
+            await answer(pilot, app, "l", str(other))
             assert await until(pilot, lambda: kinds_on(pipeline, "vib") == ["ema"])
             await pilot.press("q")
 

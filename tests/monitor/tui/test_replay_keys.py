@@ -5,7 +5,7 @@ from __future__ import annotations
 import asyncio
 
 import numpy as np
-from tui_helpers import asking, make_app, until
+from tui_helpers import answer, asking, make_app, until
 
 from monitor.block import Block, Schema
 from monitor.pipeline import Pipeline
@@ -32,12 +32,6 @@ def test_pause_seek_and_speed_of_a_replay(tmp_path):
     source = ReplaySource(path, speed=1.0, loop=True)
     pipeline = Pipeline(source)
     pipeline.start()
-
-    async def answer(pilot, app, key: str, text: str) -> None:
-        await pilot.press(key)
-        assert await until(pilot, lambda: asking(app))
-        app.screen.query_one("#answer").value = text
-        await pilot.press("enter")
 
     async def scenario():
         app = make_app(pipeline, verb="replay")

@@ -27,3 +27,11 @@ async def until(pilot, predicate, timeout: float = 8.0) -> bool:
 def asking(app) -> bool:
     """An AskValue dialog is up and composed."""
     return isinstance(app.screen, AskValue) and bool(app.screen.query("#answer"))
+
+
+async def answer(pilot, app, key: str, text: str) -> None:
+    """Press `key`, put `text` in the dialog it opens, and press enter."""
+    await pilot.press(key)
+    assert await until(pilot, lambda: asking(app))
+    app.screen.query_one("#answer").value = text
+    await pilot.press("enter")
