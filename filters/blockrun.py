@@ -22,6 +22,7 @@ filtering; scipy's own calls stay the definition of what a stage computes.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 
 import numpy as np
 
@@ -44,6 +45,9 @@ class StageRun:
         self.stages = stages
         self.width = width
         self._ends: list[np.ndarray] = [np.full((len(stages) + 1, width), np.nan)]
+        # set by a fast lane instead of _ends: its whole result, bounds in rows _lazy_rows
+        self._lazy: np.ndarray | None = None
+        self._lazy_rows = slice(0, 0)
         self._segments: list[_Fused | StageRuntime] = []
         linear: list[LinearStage] = []
         for stage in [*stages, None]:
@@ -64,13 +68,15 @@ class StageRun:
 
     @property
     def bounds(self) -> np.ndarray:
+        if self._lazy is not None:
+            self._ends, self._lazy = [self._lazy[self._lazy_rows]], None
         if len(self._ends) > 1:
             self._ends = [np.vstack(self._ends)]
         return self._ends[0]
 
     @bounds.setter
     def bounds(self, value: np.ndarray) -> None:
-        self._ends = [np.array(value, dtype=np.float64)]
+        self._ends, self._lazy = [np.array(value, dtype=np.float64)], None
 
     def process(self, x: np.ndarray) -> np.ndarray:
         """Run one block x: (n, width) float64, n >= 1 -> (n, width); x is not modified."""
@@ -82,7 +88,7 @@ class StageRun:
             else:
                 x = segment.process(x)
                 ends.append(x[-1:].copy())  # not a view of what the caller receives
-        self._ends = ends
+        self._ends, self._lazy = ends, None
         return x.copy() if not self.stages else x
 
     def reset(self, columns: np.ndarray | None) -> None:
@@ -118,39 +124,53 @@ class _Fused:
         self._state = self._work[:self.state_dim]
         self._top = self.state_dim + 1 + len(stages)  # first row of y in a step's result
         self._matrices: dict[int, np.ndarray] = {}
-        # per block length: (matrix, where the block goes in the work buffer, the operand)
-        self._lanes: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+        # per block shape: the fast step (see `lanes`)
+        self._lanes: dict[tuple[int, int], Callable[[np.ndarray], np.ndarray | None]] = {}
         self._warm = False
         offset = 0
         for stage in stages:
             stage.bind(self._work[offset:offset + stage.state_dim])
             offset += stage.state_dim
 
+    @property
+    def lanes(self) -> dict[tuple[int, int], Callable[[np.ndarray], np.ndarray | None]]:
+        """Fast steps by block shape (n, width), filled by `step` while every stage is
+        started; emptied when a stage is unstarted. The owner of the chain may call a
+        lane directly: the hot path of live blocks, so it avoids every extra lookup."""
+        return self._lanes
+
     def step(self, x: np.ndarray) -> np.ndarray | None:
         """Fast lane when this segment is a whole run: one short block x (n, width) in one
         matrix product -> y (n, width), the run's bounds updated; or None with nothing
         changed (a stage not started, n > FUSED_CHUNK or n == 0, a non-finite sample)."""
-        lane = self._lanes.get(x.shape[0])
-        if lane is None or not self._warm:
-            return self._open_lane(x)
-        matrix, slot, operand = lane
-        slot[...] = x
-        result = matrix.dot(operand)
-        # every x entry meets every row (0 * NaN is NaN), so one row tells if x was finite
-        probe = result[self.state_dim]
-        if not math.isfinite(probe.dot(probe)):
-            return None
-        self._state[...] = result[:self.state_dim]
-        self.run._ends = [result[self.state_dim:self._top]]  # type: ignore[union-attr]
-        return result[self._top:]
+        lane = self._lanes.get(x.shape)
+        if lane is None:
+            n = x.shape[0]
+            if not self._warm or not 0 < n <= FUSED_CHUNK:
+                return None
+            lane = self._lanes[x.shape] = self._make_lane(n)
+        return lane(x)
 
-    def _open_lane(self, x: np.ndarray) -> np.ndarray | None:
-        n = x.shape[0]
-        if not self._warm or not 0 < n <= FUSED_CHUNK:
-            return None
-        dim = self.state_dim
-        self._lanes[n] = (self._matrix(n), self._work[dim:dim + n], self._work[:dim + n])
-        return self.step(x)
+    def _make_lane(self, n: int) -> Callable[[np.ndarray], np.ndarray | None]:
+        """The step for blocks of n samples, with everything it touches bound locally."""
+        dim, top, run = self.state_dim, self._top, self.run
+        run._lazy_rows = slice(dim, top)  # type: ignore[union-attr]
+        dot = self._matrix(n).dot
+        slot, operand, state = self._work[dim:dim + n], self._work[:dim + n], self._state
+        isfinite = math.isfinite
+
+        def lane(x: np.ndarray) -> np.ndarray | None:
+            slot[...] = x
+            result = dot(operand)
+            # every x entry meets every row (0 * NaN is NaN), so one row tells if x was
+            # finite; summing its few values in Python is the cheapest test (measured)
+            if not isfinite(sum(result[dim].tolist())):
+                return None
+            state[...] = result[:dim]
+            run._lazy = result  # type: ignore[union-attr]
+            return result[top:]
+
+        return lane
 
     def process(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """x (n, width), n >= 1, finite -> (y (n, width), each stage's last output
@@ -176,6 +196,8 @@ class _Fused:
 
     def refresh(self) -> None:
         self._warm = all(s.all_ready for s in self.stages)
+        if not self._warm:
+            self._lanes.clear()
 
     def _matrix(self, n: int) -> np.ndarray:
         """M_n (cached): rows [new state; last input; each stage's last output; y], one

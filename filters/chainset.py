@@ -39,6 +39,8 @@ from filters.blockrun import StageRun
 from filters.spec import ChainSpec, StageSpec
 from filters.stages import make_stage
 
+_FLOAT64 = np.dtype(np.float64)
+
 
 class ChainSet:
     """Every channel's list of stages, built from one flat ChainSpec.
@@ -87,6 +89,7 @@ class ChainSet:
                        and len(self.channels) > 0 else None)
         self._width = len(self.channels)
         self._lane = self._whole.lane if self._whole is not None else None
+        self._lanes = self._lane.lanes if self._lane is not None else None
 
     def _design(self, index: int, stage: StageSpec) -> Any:
         from filters.design import design_stage
@@ -107,13 +110,16 @@ class ChainSet:
 
     def process(self, values: np.ndarray) -> np.ndarray:
         """Filter one block. values: (n, channels) float64 -> (n, channels) float64, a new array."""
-        lane = self._lane
-        if (lane is not None and type(values) is np.ndarray and values.ndim == 2
-                and values.shape[1] == self._width and values.dtype == np.float64):
+        lanes = self._lanes
+        if lanes is not None and getattr(values, "dtype", None) is _FLOAT64:
             # the common live case, one short finite block through linear stages only
-            filtered = lane.step(values)
-            if filtered is not None:
-                return filtered
+            step = lanes.get(values.shape)   # only shapes (n, width) are ever keys
+            if step is None and values.ndim == 2 and values.shape[1] == self._width:
+                step = self._lane.step
+            if step is not None:
+                filtered = step(values)
+                if filtered is not None:
+                    return filtered
         return self._process(values)
 
     def _process(self, values: np.ndarray) -> np.ndarray:
