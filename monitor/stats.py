@@ -1,15 +1,18 @@
 """Per-channel statistics of the newest samples: level, noise and noise reduction.
 
-Noise here is the RMS of the deviation from the window's mean (the AC RMS), so
-a load sitting at 12 kg with 0.4 kg of ripple has noise 0.4, and the noise
-reduction of a chain is 20 log10(noise_raw / noise_filtered) dB. A step inside
-the window (a parcel landing) counts as "noise" too: read the figure over a
-window where the signal is steady.
+Noise here is the RMS of the deviation from the mean (the AC RMS), so a load
+sitting at 12 kg with 0.4 kg of ripple has noise 0.4, and the noise reduction
+of a chain is 20 log10(noise_raw / noise_filtered) dB. A window longer than
+SEGMENTS * MIN_SEGMENT samples is cut into SEGMENTS equal sub-windows and the
+noise is the median of their AC RMS values: a step inside the window (a parcel
+landing) then disturbs one or two sub-windows and does not count as noise.
+Content slower than a sub-window is treated as signal.
 """
 
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -17,6 +20,8 @@ import numpy as np
 from monitor.ring import Ring, RingSnapshot
 
 ROUNDING = 1e-12              # relative size below which a deviation is float rounding
+SEGMENTS = 10                 # sub-windows of a long window (the median resists steps)
+MIN_SEGMENT = 16              # samples in a sub-window at the least
 
 
 @dataclass(frozen=True)
@@ -44,8 +49,8 @@ def channel_stats(snapshot: RingSnapshot) -> list[ChannelStats]:
         return []
     out = []
     means_raw, means_filtered = _nanmean(snapshot.raw), _nanmean(snapshot.filtered)
-    noise_raw = _ac_rms(snapshot.raw, means_raw)
-    noise_filtered = _ac_rms(snapshot.filtered, means_filtered)
+    noise_raw = _noise(snapshot.raw)
+    noise_filtered = _noise(snapshot.filtered)
     counts = np.sum(~np.isnan(snapshot.raw), axis=0)
     for k in range(snapshot.raw.shape[1]):
         out.append(ChannelStats(
@@ -60,6 +65,20 @@ def channel_stats(snapshot: RingSnapshot) -> list[ChannelStats]:
 def ring_stats(ring: Ring, samples: int) -> list[ChannelStats]:
     """channel_stats over the newest `samples` of `ring`."""
     return channel_stats(ring.latest(samples))
+
+
+def _noise(values: np.ndarray) -> np.ndarray:
+    """(n, k) -> (k,): AC RMS of the window, or the median over SEGMENTS sub-windows."""
+    n = values.shape[0]
+    if n < SEGMENTS * MIN_SEGMENT:
+        return _ac_rms(values, _nanmean(values))
+    size = n // SEGMENTS
+    newest = values[n - size * SEGMENTS:]
+    per_segment = np.array([_ac_rms(part, _nanmean(part))
+                            for part in np.split(newest, SEGMENTS)])   # (SEGMENTS, k)
+    with warnings.catch_warnings():      # a channel with no finite sample: NaN, quietly
+        warnings.simplefilter("ignore", RuntimeWarning)
+        return np.nanmedian(per_segment, axis=0)
 
 
 def _nanmean(values: np.ndarray) -> np.ndarray:

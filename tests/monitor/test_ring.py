@@ -155,3 +155,22 @@ def test_stats_ignore_missing_samples_and_empty_ring():
     (stats,) = ring_stats(ring, 10)
     assert (stats.mean_raw, stats.noise_raw, stats.samples) == (2.0, 1.0, 2)
     assert noise_reduction_db(1.0, 0.0) == np.inf
+
+
+def test_stats_a_step_in_the_window_is_not_noise():
+    from monitor.stats import ring_stats
+
+    # A parcel lands mid-window: 20 kg on a 2 kg tare with 0.1 kg of white noise; the
+    # filtered copy carries 0.01 kg. Noise is the median of sub-window AC RMS values, so
+    # the step (one sub-window) does not count and the reduction stays near 20 dB.
+    rng = np.random.default_rng(1)
+    n = 2500
+    step = np.where(np.arange(n) >= 1200, 20.0, 0.0)
+    raw = (2.0 + step + 0.1 * rng.standard_normal(n))[:, None]
+    filtered = (2.0 + step + 0.01 * rng.standard_normal(n))[:, None]
+    ring = Ring(1, n)
+    ring.write(np.arange(n) / 250.0, raw, filtered)
+    (load,) = ring_stats(ring, n)
+    assert load.noise_raw == pytest.approx(0.1, rel=0.1)
+    assert load.reduction_db == pytest.approx(20.0, abs=1.5)
+    assert load.mean_raw == pytest.approx(float(raw.mean()))
