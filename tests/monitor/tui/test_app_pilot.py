@@ -9,7 +9,8 @@ import re
 import numpy as np
 import pytest
 from scipy import signal
-from textual.command import CommandPalette
+from textual.command import CommandList, CommandPalette
+from textual.widgets import Input
 from tui_helpers import answer, asking, make_app, until
 
 from filters.chainfile import format_chain, parse_chain
@@ -52,18 +53,35 @@ async def highlight_stage(pilot, app, position: int) -> None:
     stages = app.query_one("#stages")
     assert await until(pilot, lambda: len(stages.indices) > position)
     stages.focus()
+    assert await until(pilot, lambda: app.focused is stages)
     stages.highlighted = position
     assert await until(pilot, lambda: app.query_one("#form").target is not None
                        and app.query_one("#form").target.index == stages.indices[position])
 
 
 async def type_into(pilot, app, selector: str, text: str) -> None:
-    """Focus the field, clear it and type `text` key by key, as a user would."""
+    """Focus the field, clear it and type `text` key by key, as a user would.
+
+    Returns once the field holds `text`: focus moves on a later turn of the event
+    loop and keys reach the field through the app's queues, so a step that
+    follows (another field, a Select) must not overtake them.
+    """
     field = app.query_one(selector)
     field.focus()
-    await pilot.pause()
+    assert await until(pilot, lambda: app.focused is field)
     field.value = ""
     await pilot.press(*text)
+    assert await until(pilot, lambda: field.value == text)
+
+
+def palette_offers(app, query: str, label: str) -> bool:
+    """The open command palette has searched `query` and highlights the hit `label` first."""
+    if not CommandPalette.is_open(app):
+        return False
+    palette = app.screen
+    commands = palette.query_one(CommandList)
+    return (palette.query_one(Input).value == query and commands.highlighted == 0
+            and commands.get_option_at_index(0).hit.text == label)
 
 
 def field_error(app, key: str) -> str:
@@ -279,7 +297,8 @@ def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline
             await pilot.press("ctrl+p")
             assert await until(pilot, lambda: CommandPalette.is_open(app))
             await pilot.press(*"lag frequency")
-            await pilot.pause(0.5)                                 # the palette searches
+            assert await until(pilot, lambda: palette_offers(app, "lag frequency",
+                                                             "lag frequency (g)"))
             await pilot.press("enter")
             assert await until(pilot, lambda: asking(app))
             assert "lag is computed" in str(app.screen.query_one("Label").render())
@@ -303,9 +322,9 @@ def test_view_hold_trace_freeze_window_and_analysis_frequency(start_pipeline):
             await pilot.press("space")
             assert await until(pilot, lambda: pipeline.ring.total > total)
             await pilot.press("f")
-            assert app.ui.frozen
+            assert await until(pilot, lambda: app.ui.frozen)
             await pilot.press("f", "minus")
-            assert app.ui.window_s < 5.0
+            assert await until(pilot, lambda: app.ui.window_s < 5.0)
             lag_1hz = app.session.lag_ms("load", 1.0)
             await pilot.press("g")
             assert await until(pilot, lambda: asking(app))
@@ -369,7 +388,8 @@ def test_components_give_derived_values_and_a_poor_method_warns(start_pipeline):
             running = dict(pipeline.chain.designs_for("load"))[2]
             assert abs(running.derived["cutoff_hz"] - 1 / (2 * np.pi * 1e4 * 1e-6)) < 1e-9
             # a discretization far from the prototype at this rate is flagged, not refused
-            await pilot.press("escape")
+            await pilot.press("escape")                           # to the table, once it lands
+            assert await until(pilot, lambda: app.focused is app.query_one("#channels"))
             await highlight_stage(pilot, app, 2)
             app.query_one("#field-r_ohm").value = ""
             app.query_one("#field-c_farad").value = ""

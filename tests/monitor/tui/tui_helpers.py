@@ -25,8 +25,9 @@ async def until(pilot, predicate, timeout: float = 8.0) -> bool:
 
 
 def asking(app) -> bool:
-    """An AskValue dialog is up and composed."""
-    return isinstance(app.screen, AskValue) and bool(app.screen.query("#answer"))
+    """An AskValue dialog is up, composed and its answer field has the focus (enter reaches it)."""
+    return (isinstance(app.screen, AskValue) and bool(app.screen.query("#answer"))
+            and app.screen.focused is app.screen.query_one("#answer"))
 
 
 async def answer(pilot, app, key: str, text: str) -> None:
