@@ -21,8 +21,8 @@ class PtyBoard:
 
     path:  the slave device to open, like /dev/ttyACM0.
     write(data) writes at once; play(lines, rate_hz) paces lines from a thread;
-    flood(make_line, seconds) writes without waiting and drops lines the pty will
-    not take (as a board's full TX buffer does), counting them in `skipped`.
+    flood(make_line, seconds, min_bytes=0) writes without waiting and drops lines the
+    pty will not take (as a board's full TX buffer does), counting them in `skipped`.
     """
 
     def __init__(self) -> None:
@@ -54,8 +54,10 @@ class PtyBoard:
         return self._start(run)
 
     def flood(self, make_line: Callable[[int], bytes], seconds: float,
-              batch: int = 64) -> threading.Thread:
-        """Write make_line(i) for i = 0, 1, ... as fast as possible for `seconds`.
+              batch: int = 64, min_bytes: int = 0,
+              timeout_s: float = 20.0) -> threading.Thread:
+        """Write make_line(i) for i = 0, 1, ... as fast as possible for `seconds`,
+        and on until `min_bytes` have gone out (at most `timeout_s` s in all).
 
         Lines go out `batch` at a time; a batch the pty will not take is lost whole
         (counted in `skipped`), as when a board's TX buffer is full.
@@ -63,9 +65,13 @@ class PtyBoard:
         os.set_blocking(self.master, False)
 
         def run() -> None:
-            end = time.monotonic() + seconds
+            start = time.monotonic()
             i = 0
-            while time.monotonic() < end and not self._stop.is_set():
+            while not self._stop.is_set():
+                now = time.monotonic()
+                if now >= start + timeout_s or (now >= start + seconds
+                                                and self.bytes_sent >= min_bytes):
+                    break
                 data = b"".join(make_line(j) for j in range(i, i + batch))
                 try:
                     written = os.write(self.master, data)
