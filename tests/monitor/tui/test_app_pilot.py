@@ -74,6 +74,16 @@ async def type_into(pilot, app, selector: str, text: str) -> None:
     assert await until(pilot, lambda: field.value == text)
 
 
+async def leave_field(pilot, app) -> None:
+    """Escape to the channel table and wait until the focus is there.
+
+    The focus moves on a later turn of the event loop; a key sent before it lands
+    (q, or a test's own focus call) would still go to the field.
+    """
+    await pilot.press("escape")
+    assert await until(pilot, lambda: app.focused is app.query_one("#channels"))
+
+
 def palette_offers(app, query: str, label: str) -> bool:
     """The open command palette has searched `query` and highlights the hit `label` first."""
     if not CommandPalette.is_open(app):
@@ -113,7 +123,8 @@ def test_editing_a_cutoff_reaches_the_running_chain(start_pipeline):
             assert kinds_on(pipeline, "current") == ["notch"]
             assert "applied" in app.ui.notice
             assert app.focused is app.query_one("#field-cutoff_hz")   # focus stays in the field
-            await pilot.press("escape", "q")                           # leave the field, quit
+            await leave_field(pilot, app)
+            await pilot.press("q")                                     # quit
             assert await until(pilot, lambda: app.return_value is not None)
         return app.return_value
 
@@ -144,7 +155,8 @@ def test_a_cutoff_above_nyquist_is_refused_beside_the_field(start_pipeline):
             await pilot.pause(0.2)
             assert pipeline.chain is before
             assert pipeline.status().running
-            await pilot.press("escape", "q")
+            await leave_field(pilot, app)
+            await pilot.press("q")
 
     run(scenario())
 
@@ -303,6 +315,7 @@ def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline
             assert await until(pilot, lambda: asking(app))
             assert "lag is computed" in str(app.screen.query_one("Label").render())
             await pilot.press("escape")
+            assert await until(pilot, lambda: not isinstance(app.screen, AskValue))
             await pilot.press("q")
 
     run(scenario())
@@ -388,8 +401,7 @@ def test_components_give_derived_values_and_a_poor_method_warns(start_pipeline):
             running = dict(pipeline.chain.designs_for("load"))[2]
             assert abs(running.derived["cutoff_hz"] - 1 / (2 * np.pi * 1e4 * 1e-6)) < 1e-9
             # a discretization far from the prototype at this rate is flagged, not refused
-            await pilot.press("escape")                           # to the table, once it lands
-            assert await until(pilot, lambda: app.focused is app.query_one("#channels"))
+            await leave_field(pilot, app)
             await highlight_stage(pilot, app, 2)
             app.query_one("#field-r_ohm").value = ""
             app.query_one("#field-c_farad").value = ""
@@ -399,7 +411,8 @@ def test_components_give_derived_values_and_a_poor_method_warns(start_pipeline):
             assert await until(pilot, lambda: "too long for matched" in str(warnings.render()))
             assert await until(pilot, lambda: pipeline.chain.spec.stages[2].params.get("method")
                                == "matched")
-            await pilot.press("escape", "q")
+            await leave_field(pilot, app)
+            await pilot.press("q")
 
     run(scenario())
 
