@@ -255,6 +255,14 @@ class ParamForm(VerticalScroll):
 
     def on_select_changed(self, event: Select.Changed) -> None:
         event.stop()
+        if self.target is None:
+            return
+        key = (event.select.id or "").removeprefix("field-")
+        stage = self.target.stage
+        shown = (stage.start if key == "start"
+                 else stage.params.get(key, KINDS[stage.kind].defaults.get(key)))
+        if event.value == shown:
+            return      # a field announcing the value it was built with, not a user's choice
         self._submit()
 
     def _submit(self) -> None:
