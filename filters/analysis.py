@@ -265,14 +265,6 @@ def noise_gain_db(designs: StageDesign | Sequence[StageDesign]) -> float:
     return 10 * math.log10(gain) if gain > 0 else -math.inf
 
 
-def characteristic_hz(design: StageDesign) -> float | None:
-    """The stage's own reference frequency: cutoff, centre, or first null; None if none."""
-    for key in ("cutoff_hz", "centre_hz", "first_null_hz"):
-        if key in design.derived:
-            return float(design.derived[key])
-    return None
-
-
 def default_analysis_hz(designs: StageDesign | Sequence[StageDesign], rate_hz: float) -> float:
     """Where lag is quoted by default: the chain's first cutoff, else the centre of its
     first band-pass, else 1 Hz (never at or above a quarter of the rate)."""
