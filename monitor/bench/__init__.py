@@ -13,6 +13,26 @@ from collections.abc import Callable
 PARTS: tuple[str, ...] = ("core", "filters", "replay", "binary", "export", "ui", "render")
 DEFAULT_PARTS: tuple[str, ...] = ("core", "filters", "replay", "binary", "export", "ui")
 
+# The chain of the issue targets, shared by the core, replay and ui parts: median(5) +
+# notch (50 Hz, q 30) + Butterworth low-pass of order 4 at BENCH_LOWPASS_HZ.
+BENCH_LOWPASS_HZ = 10.0
+BENCH_CHAIN_TEXT = f"""\
+[[stage]]
+kind = "median"
+window = 5
+
+[[stage]]
+kind = "notch"
+freq_hz = 50.0
+q = 30.0
+
+[[stage]]
+kind = "butterworth"
+band = "lowpass"
+order = 4
+cutoff_hz = {BENCH_LOWPASS_HZ}
+"""
+
 
 def best_of(repeats: int, work: Callable[[], object]) -> float:
     """Shortest wall time of `repeats` runs of work() (s): the least disturbed run."""

@@ -33,7 +33,7 @@ import time
 
 import numpy as np
 
-from monitor.bench import best_of
+from monitor.bench import BENCH_CHAIN_TEXT, BENCH_LOWPASS_HZ, best_of
 from monitor.decoding import TextDecoder
 from monitor.framing import TextFramer
 from monitor.pipeline import FramedSource, Pipeline, text_source
@@ -42,22 +42,6 @@ from monitor.ring import DEFAULT_RING_CAPACITY, Ring
 CHANNELS = 8
 READ_BYTES = 4096
 RATE_HZ = 1000.0
-CHAIN_TEXT = """\
-[[stage]]
-kind = "median"
-window = 5
-
-[[stage]]
-kind = "notch"
-freq_hz = 50.0
-q = 30.0
-
-[[stage]]
-kind = "butterworth"
-band = "lowpass"
-order = 4
-cutoff_hz = 40.0
-"""
 TARGET_IDENTITY_RATIO = 0.8
 TARGET_CHAIN_RATIO = 0.6
 TARGET_LATENCY_P99_MS = 2.0
@@ -136,10 +120,11 @@ def _throughput(quick: bool) -> dict[str, float | bool]:
     text = board_text(lines)
     data = text.encode()
     chunks = [data[i:i + READ_BYTES] for i in range(0, len(data), READ_BYTES)]
-    spec = parse_chain(CHAIN_TEXT)
+    spec = parse_chain(BENCH_CHAIN_TEXT)
     # The reference's linear sections: the same notch and Butterworth designs.
     b, a = signal.iirnotch(50.0, 30.0, fs=RATE_HZ)
-    sos = np.vstack([signal.tf2sos(b, a), signal.butter(4, 40.0, fs=RATE_HZ, output="sos")])
+    lowpass = signal.butter(4, BENCH_LOWPASS_HZ, fs=RATE_HZ, output="sos")
+    sos = np.vstack([signal.tf2sos(b, a), lowpass])
 
     def parse_only() -> np.ndarray:
         return np.loadtxt(io.StringIO(text), delimiter=",")

@@ -23,6 +23,8 @@ import sys
 import tempfile
 import time
 
+from monitor.bench import BENCH_CHAIN_TEXT, BENCH_LOWPASS_HZ
+
 CHANNELS = 8
 RATE_HZ = 1000.0
 FULL_LINES = 1_000_000
@@ -32,22 +34,6 @@ APPLY_MEMORY_TARGET_MB = 200.0
 REPLAY_TARGET_LINES_PER_S = 200_000.0
 REPLAY_REPEATS = 3
 
-CHAIN_TEXT = """\
-[[stage]]
-kind = "median"
-window = 5
-
-[[stage]]
-kind = "notch"
-freq_hz = 50.0
-q = 30.0
-
-[[stage]]
-kind = "butterworth"
-band = "lowpass"
-order = 4
-cutoff_hz = 10.0
-"""
 
 REFERENCE = """\
 import sys
@@ -56,7 +42,7 @@ import scipy.signal as signal
 src, out, skip, rate = sys.argv[1], sys.argv[2], int(sys.argv[3]), float(sys.argv[4])
 data = np.loadtxt(src, delimiter=",", skiprows=skip, comments="#")
 b, a = signal.iirnotch(50.0, 30.0, fs=rate)
-sos = np.vstack([signal.tf2sos(b, a), signal.butter(4, 10.0, fs=rate, output="sos")])
+sos = np.vstack([signal.tf2sos(b, a), signal.butter(4, float(sys.argv[5]), fs=rate, output="sos")])
 filtered = signal.sosfilt(sos, data[:, 1:], axis=0)
 np.savetxt(out, np.hstack([data, filtered]), delimiter=",", fmt="%.17g")
 """
@@ -83,7 +69,7 @@ def write_bench_recording(path: str, lines: int, channels: int = CHANNELS) -> in
     from replay.writer import header_text
 
     names = tuple(f"ch{k}" for k in range(channels))
-    header = header_text(Schema(names), "bench", RATE_HZ, "declared", CHAIN_TEXT, False)
+    header = header_text(Schema(names), "bench", RATE_HZ, "declared", BENCH_CHAIN_TEXT, False)
     rng = np.random.default_rng(7)
     with open(path, "w", encoding="utf-8") as f:
         f.write(header)
@@ -140,12 +126,13 @@ def run(quick: bool) -> dict[str, float | int | bool]:
         src = os.path.join(tmp, "weigh.csv")
         chain = os.path.join(tmp, "chain.toml")
         with open(chain, "w", encoding="utf-8") as f:
-            f.write(CHAIN_TEXT)
+            f.write(BENCH_CHAIN_TEXT)
         skip = write_bench_recording(src, lines)
         apply_s, apply_rss = run_child([sys.executable, "-c", APPLY_CHILD, "apply", src,
                                         "--chain", chain, "-o", os.path.join(tmp, "out.csv")])
         ref_s, ref_rss = run_child([sys.executable, "-c", REFERENCE + PEAK_REPORT, src,
-                                    os.path.join(tmp, "ref.csv"), str(skip), str(RATE_HZ)])
+                                    os.path.join(tmp, "ref.csv"), str(skip), str(RATE_HZ),
+                                    str(BENCH_LOWPASS_HZ)])
         # the least disturbed of a few runs: other processes share this machine
         replay_rate = max(measure_replay(src, lines) for _ in range(REPLAY_REPEATS))
     ratio = ref_s / apply_s

@@ -30,7 +30,7 @@ import threading
 import time
 from collections.abc import Callable
 
-from monitor.bench.core import CHAIN_TEXT  # the same chain as the core bench
+from monitor.bench import BENCH_CHAIN_TEXT
 
 SOURCE = "sim://?rate=1000&channels=8"
 RATE_HZ = 1000.0
@@ -84,7 +84,7 @@ def measure_cpu(warmup_s: float, window_s: float) -> dict[str, float]:
     with tempfile.TemporaryDirectory() as tmp:
         chain = os.path.join(tmp, "bench-chain.toml")
         with open(chain, "w", encoding="utf-8") as f:
-            f.write(CHAIN_TEXT)
+            f.write(BENCH_CHAIN_TEXT)
         base = [*_tunetrace(), "live", SOURCE, "--chain", chain, "--duration", f"{duration:g}"]
         ui, master, drawn = _start_ui(base, env)
         plain = subprocess.Popen([*base, "--plain"], stdout=subprocess.DEVNULL,
@@ -149,7 +149,7 @@ def measure_key_to_chain(presses: int) -> list[float]:
     from monitor.sources import open_byte_source
     from monitor.tui.app import TunetraceApp
 
-    pipeline = Pipeline(text_source(open_byte_source(SOURCE)), parse_chain(CHAIN_TEXT),
+    pipeline = Pipeline(text_source(open_byte_source(SOURCE)), parse_chain(BENCH_CHAIN_TEXT),
                         rate_hz=RATE_HZ)
     pipeline.start()
     times_ms: list[float] = []

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from monitor.bench.replay import CHAIN_TEXT as BENCH_CHAIN_TEXT
+from monitor.bench import BENCH_CHAIN_TEXT
 from monitor.block import Block, Schema
 
 SCHEMA = Schema(("load", "current", "vib"), ("kg", "A", "g"))
