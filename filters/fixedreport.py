@@ -9,6 +9,16 @@ that do not saturate. The bound adds, stage by stage: input rounding (0.5 LSB), 
 every section output through its noise gain, coefficient error (L1 of the impulse response
 difference), the steady-start rounding, and upstream error through the stage's L1 gain.
 
+For the float targets (c-float: float32, c-double) each channel runs through the
+operation-exact model of the generated C (filters.float32model) on the export's own test
+vectors and on a step from rest: the report states the largest error against the float64
+chain (fraction of the output peak) and the DC gain against the designed one, and the target
+holds the chain only when both are within FLOAT_TOLERANCE (the number the export's README
+check uses) less a margin of a few rounding steps for the compiler. The biquad structure is
+chosen per channel: plain transposed direct form II when it holds, else the delta form
+(coefficients as offsets from z = 1, compensated states), which keeps low cutoffs at high
+rates.
+
 Limits below are this project's choices (common practice for sensor filtering), not a standard.
 """
 
@@ -22,12 +32,31 @@ from typing import Any
 import numpy as np
 
 from filters.fixedpoint import QFormat, StagePlan, fix_stage, plan_stage, q_format
+from filters.float32model import (
+    STRUCTURES,
+    FloatFigures,
+    float_figures,
+    reference_output,
+    rows_response,
+    section_poles,
+    stored_rows,
+)
 
 TARGETS: tuple[str, ...] = ("c-float", "c-double", "c-q15", "c-q31")
 RESPONSE_ERROR_LIMIT_DB = 0.5      # largest response error at a characteristic frequency
 ERROR_BOUND_LIMIT = 0.01           # largest output error bound, as a fraction of full scale
 SIGNIFICANT_GAIN = 0.01            # response points below -40 dB are not compared
 _MAX_IMPULSE = 1 << 17
+# Float targets: largest error over the test vectors (fraction of each output column's
+# peak) and of the DC gain; the export's README check compares the compiled code with the
+# same number.
+FLOAT_TOLERANCE: dict[str, float] = {"c-float": 1e-5, "c-double": 1e-12}
+# Room kept below the tolerance for a compiler whose rounding differs from the model by a
+# few steps (in units of the sample type's machine epsilon, relative to the peak).
+FLOAT_MARGIN_EPS = 8
+STRUCTURE_NAMES = {"tdf2": "transposed direct form II",
+                   "delta": "delta form (offsets from z = 1, compensated states)",
+                   "df1": "direct form I"}
 
 
 @dataclass(frozen=True)
@@ -68,6 +97,9 @@ class ChannelQuantization:
     channel: str
     full_scale: float
     stages: tuple[StageQuantization, ...]
+    structure: str = "df1"               # biquad structure: tdf2 / delta (float), df1 (fixed)
+    figures: FloatFigures | None = None  # float targets: the model's error and DC gain
+    plain: FloatFigures | None = None    # float targets: tdf2's figures when delta was chosen
 
     @property
     def error_bound(self) -> float:
@@ -86,6 +118,12 @@ class QuantizationReport:
     problems: tuple[str, ...]
     warnings: tuple[str, ...]
     suggestion: str = ""     # the fix to try when not ok
+    vectors_seconds: float = 4.0
+
+    @property
+    def tolerance(self) -> float:
+        """Float targets: the stated tolerance (fraction of peak); 0 for fixed point."""
+        return FLOAT_TOLERANCE.get(self.target, 0.0)
 
     @property
     def ok(self) -> bool:
@@ -96,11 +134,8 @@ class QuantizationReport:
         return {"target": self.target, "ok": self.ok, "fatal": list(self.fatal),
                 "problems": list(self.problems), "warnings": list(self.warnings),
                 "suggestion": "" if self.ok else self.suggestion,
-                "channels": {c.channel: {"error_bound_full_scale": c.error_bound,
-                                         "worst_response_error_db":
-                                             max((s.worst_error_db for s in c.stages),
-                                                 default=0.0)}
-                             for c in self.channels},
+                "tolerance": self.tolerance,
+                "channels": {c.channel: _channel_dict(c) for c in self.channels},
                 "text": self.format_text()}
 
     def format_text(self) -> str:
@@ -122,7 +157,9 @@ class QuantizationReport:
                     coefs = " ".join(str(c) if isinstance(c, int) else f"{c:.9g}"
                                      for c in sec.coefficients)
                     shift = f" shift {sec.shift}" if fixed else ""
-                    lines.append(f"    section {i}:{shift} b0 b1 b2 a1 a2 = {coefs}; "
+                    names = ("b0 2b0+b1 b0+b1+b2 2+a1 1+a1+a2" if ch.structure == "delta"
+                             else "b0 b1 b2 a1 a2")
+                    lines.append(f"    section {i}:{shift} {names} = {coefs}; "
                                  f"pole radius {sec.pole_radius:.6f}; "
                                  f"peak gain (L1) {sec.l1_from_stage_input:.3f}")
                 for f, e in st.response_error_db:
@@ -137,6 +174,8 @@ class QuantizationReport:
                 lines.append(f"  output error bound: {ch.error_bound * 100:.4f} % of full scale "
                              f"= {ch.error_bound * ch.full_scale:.6g} units "
                              "(inputs within full scale, no saturation)")
+            if ch.figures is not None:
+                lines.extend(_float_lines(ch, self.tolerance))
         for title, items in (("REFUSED", self.fatal), ("PROBLEM", self.problems),
                              ("warning", self.warnings)):
             lines.extend(f"{title}: {text}" for text in items)
@@ -145,6 +184,33 @@ class QuantizationReport:
         else:
             lines.append(f"suggested fix: {self.suggestion}")
         return "\n".join(lines)
+
+
+def _channel_dict(c: ChannelQuantization) -> dict[str, object]:
+    out: dict[str, object] = {
+        "error_bound_full_scale": c.error_bound, "structure": c.structure,
+        "worst_response_error_db": max((s.worst_error_db for s in c.stages), default=0.0)}
+    if c.figures is not None:
+        f = c.figures
+        out.update(vector_error_of_peak=f.vector_error, dc_gain=f.dc_gain_model,
+                   dc_gain_designed=f.dc_gain_design, dc_error=f.dc_error,
+                   dc_samples=f.dc_samples, dc_settled=f.dc_settled)
+    return out
+
+
+def _float_lines(ch: ChannelQuantization, tolerance: float) -> list[str]:
+    f = ch.figures
+    why = ""
+    if ch.structure == "delta" and ch.plain is not None:
+        why = (f" (plain transposed direct form II would be off by "
+               f"{max(ch.plain.vector_error, ch.plain.dc_error):.2g})")
+    settled = "" if f.dc_settled else ", compared with the float64 chain at that sample"
+    return [f"  biquad structure: {STRUCTURE_NAMES[ch.structure]}{why}",
+            f"  model of the C on the test vectors: max error {f.vector_error:.3g} of peak "
+            f"(tolerance {tolerance:g})",
+            f"  DC gain {f.dc_gain_model:.9g} after a {f.dc_samples}-sample step from rest "
+            f"(designed {f.dc_gain_design:.9g}{settled}): error {f.dc_error:.3g} "
+            f"(tolerance {tolerance:g})"]
 
 
 def _impulse(sos: np.ndarray, radius: float) -> np.ndarray:
@@ -162,13 +228,15 @@ def _pole_radius(row: np.ndarray) -> float:
     return float(max((abs(r) for r in roots), default=0.0))
 
 
-def _response_errors(plan: StagePlan, quantized: np.ndarray) -> tuple[tuple[float, float], ...]:
+def _response_errors(plan: StagePlan, quantized: np.ndarray, structure: str = "tdf2"
+                     ) -> tuple[tuple[float, float], ...]:
     from scipy.signal import freqz_sos
 
     freqs = np.array((0.0, *plan.freqs_hz))
+    rate = plan.rate_hz or 1.0
     with np.errstate(divide="ignore", invalid="ignore"):
-        _, exact = freqz_sos(plan.sos, worN=freqs, fs=plan.rate_hz or 1.0)
-        _, got = freqz_sos(quantized, worN=freqs, fs=plan.rate_hz or 1.0)
+        _, exact = freqz_sos(plan.sos, worN=freqs, fs=rate)
+        got = rows_response(quantized, structure, freqs, rate)
     out = []
     for f, e, g in zip(freqs, np.abs(exact), np.abs(got), strict=True):
         if np.isfinite(e) and np.isfinite(g) and e > SIGNIFICANT_GAIN:
@@ -176,22 +244,29 @@ def _response_errors(plan: StagePlan, quantized: np.ndarray) -> tuple[tuple[floa
     return tuple(out)
 
 
-def _biquad_stage(plan: StagePlan, fmt: QFormat | None, dtype: type, err_in: float
-                  ) -> StageQuantization:
+def _biquad_stage(plan: StagePlan, fmt: QFormat | None, dtype: type, err_in: float,
+                  structure: str = "tdf2") -> StageQuantization:
     """Quantization facts of a biquad cascade; err_in and the result are in LSB (fixed)."""
     from filters.fixedpoint import balance_sections
 
     if fmt is None:
-        rows = plan.sos.astype(dtype).astype(np.float64)
-        stored = [tuple(float(v) for v in r[[0, 1, 2, 4, 5]]) for r in rows]
-        shifts = [0] * len(rows)
+        stored_table = stored_rows(plan.sos, structure, dtype)
+        stored = [tuple(float(v) for v in r[:5]) for r in stored_table]
+        shifts = [0] * len(stored_table)
+        radii = [float(max(np.abs(section_poles(r, structure)), default=0.0))
+                 for r in stored_table]
         fixed = None
+        # the cascade the stored values stand for, for the L1 gains (float64 arithmetic)
+        b0, b1, b2, a1, a2 = (stored_table[:, i] for i in range(5))
+        if structure == "delta":
+            b1, b2, a1, a2 = b1 - 2 * b0, b2 - b1 + b0, a1 - 2, a2 - a1 + 1
+        rows = np.column_stack([b0, b1, b2, np.ones(len(b0)), a1, a2])
     else:
         fixed = fix_stage(plan, fmt, 1.0).sections
         rows = np.array([s.sos_row(fmt) for s in fixed])
         stored = [(*s.b, *s.a) for s in fixed]
         shifts = [s.shift for s in fixed]
-    radii = [_pole_radius(r) for r in rows]
+        radii = [_pole_radius(r) for r in rows]
     stable = all(r < 1.0 for r in radii)
     r_max = max(radii, default=0.0)
     l1s = [float(np.sum(np.abs(_impulse(rows[: i + 1], r_max)))) if stable else math.inf
@@ -215,19 +290,23 @@ def _biquad_stage(plan: StagePlan, fmt: QFormat | None, dtype: type, err_in: flo
             dc_held = sec.dc_gain / float(1 << (fmt.frac - sec.dc_shift))
             start = (0.5 + abs(dc_true - dc_held) * lsb) * (abs(row[4]) + 2 * abs(row[5]))
             bound += (0.5 + start) * gain
-    return StageQuantization(plan.label, plan.form, sections, _response_errors(plan, rows),
+    if fmt is None:
+        errors = _response_errors(plan, stored_table, structure)
+    else:  # scipy layout b0 b1 b2 a0 a1 a2 -> table layout b0 b1 b2 a1 a2
+        errors = _response_errors(plan, rows[:, [0, 1, 2, 4, 5, 5]])
+    return StageQuantization(plan.label, plan.form, sections, errors,
                              max(l1s, default=1.0), bound)
 
 
-def _channel(channel: str, plans: Sequence[StagePlan], target: str, full_scale: float
-             ) -> ChannelQuantization:
+def _channel(channel: str, plans: Sequence[StagePlan], target: str, full_scale: float,
+             structure: str = "tdf2") -> ChannelQuantization:
     fmt = q_format(target) if target in ("c-q15", "c-q31") else None
     dtype = np.float64 if target == "c-double" else np.float32
     err = 0.5  # LSB: rounding the input into Q
     stages = []
     for plan in plans:
         try:
-            st = _stage(plan, fmt, dtype, err, full_scale)
+            st = _stage(plan, fmt, dtype, err, full_scale, structure)
         except ValueError as exc:
             st = StageQuantization(plan.label, plan.form, (), (), 1.0, err, str(exc))
         err = st.error_bound
@@ -237,14 +316,55 @@ def _channel(channel: str, plans: Sequence[StagePlan], target: str, full_scale: 
         stages = [StageQuantization(s.label, s.form, s.sections, s.response_error_db,
                                     s.peak_gain, s.error_bound / lsb, s.failure)
                   for s in stages]
-    return ChannelQuantization(channel, full_scale, tuple(stages))
+    return ChannelQuantization(channel, full_scale, tuple(stages),
+                               "df1" if fmt is not None else structure)
 
 
-def _stage(plan: StagePlan, fmt: QFormat | None, dtype: type, err: float, full_scale: float
-           ) -> StageQuantization:
+def _float_channel(channel: str, index: int, plans: Sequence[StagePlan], target: str,
+                   full_scale: float, rate_hz: float, seconds: float, structure: str
+                   ) -> ChannelQuantization:
+    """A float channel: the model on the test vectors picks (or checks) the structure."""
+    from filters.exercise import channel_input
+
+    dtype = np.float64 if target == "c-double" else np.float32
+    x = channel_input(index, seconds, rate_hz, full_scale, False).astype(dtype)
+    x = x.astype(np.float64)
+    ref = reference_output(plans, x)
+    limit = _float_limit(target)
+    has_biquads = any(p.form == "biquads" for p in plans)
+    order = [structure] if structure != "auto" else ["tdf2", "delta"] if has_biquads \
+        else ["tdf2"]
+    tried: list[FloatFigures] = []
+    for name in order:
+        try:
+            tried.append(float_figures(plans, x, name, dtype, full_scale, ref))
+        except (ValueError, np.linalg.LinAlgError):
+            break
+        if tried[-1].holds(limit):
+            break
+    if not tried:
+        return _channel(channel, plans, target, full_scale, order[0])
+    if structure == "auto" and not tried[-1].holds(limit):
+        best = min(tried, key=lambda f: max(f.vector_error, f.dc_error))
+    else:
+        best = tried[-1]
+    out = _channel(channel, plans, target, full_scale, best.structure)
+    plain = tried[0] if best.structure != tried[0].structure else None
+    return ChannelQuantization(out.channel, out.full_scale, out.stages, best.structure,
+                               best, plain)
+
+
+def _float_limit(target: str) -> float:
+    """The tolerance less the compiler margin: what the model must meet for "holds"."""
+    eps = float(np.finfo(np.float64 if target == "c-double" else np.float32).eps)
+    return FLOAT_TOLERANCE[target] - FLOAT_MARGIN_EPS * eps
+
+
+def _stage(plan: StagePlan, fmt: QFormat | None, dtype: type, err: float, full_scale: float,
+           structure: str = "tdf2") -> StageQuantization:
     """One stage's facts; err (LSB) is the error bound at the stage input."""
     if plan.form == "biquads":
-        return _biquad_stage(plan, fmt, dtype, err)
+        return _biquad_stage(plan, fmt, dtype, err, structure)
     peak, coefs, shift = 1.0, (), 0
     fs = fix_stage(plan, fmt, full_scale) if fmt is not None else None  # ValueError: can't
     if plan.form == "moving-average":
@@ -260,13 +380,31 @@ def _stage(plan: StagePlan, fmt: QFormat | None, dtype: type, err: float, full_s
 
 
 def report_for_plans(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, target: str,
-                     full_scales: Mapping[str, float] | None = None) -> QuantizationReport:
-    """The report for stage plans per channel; full_scales: channel -> units (default 1.0)."""
+                     full_scales: Mapping[str, float] | None = None,
+                     vectors_seconds: float = 4.0, structure: str = "auto"
+                     ) -> QuantizationReport:
+    """The report for stage plans per channel; full_scales: channel -> units (default 1.0).
+
+    Float targets model the C on the export's test vectors of `vectors_seconds` (channel k
+    of `plans` gets the k-th exported column) and choose each channel's biquad structure
+    ("auto": tdf2 when it holds, else delta; or force "tdf2" / "delta").
+    """
     if target not in TARGETS:
         raise ValueError(f"target = {target!r} is not one of {', '.join(TARGETS)}")
+    if structure not in ("auto", *STRUCTURES):
+        raise ValueError(f"structure = {structure!r} is not one of auto, "
+                         f"{', '.join(STRUCTURES)}")
+    if not (math.isfinite(vectors_seconds) and vectors_seconds > 0):
+        raise ValueError(f"vectors_seconds = {vectors_seconds!r} must be above 0")
     full_scales = full_scales or {}
-    channels = tuple(_channel(name, p, target, float(full_scales.get(name, 1.0)))
-                     for name, p in plans.items())
+    fixed = target in ("c-q15", "c-q31")
+    if fixed:
+        channels = tuple(_channel(name, p, target, float(full_scales.get(name, 1.0)))
+                         for name, p in plans.items())
+    else:
+        channels = tuple(_float_channel(name, k, p, target, float(full_scales.get(name, 1.0)),
+                                        float(rate_hz), vectors_seconds, structure)
+                         for k, (name, p) in enumerate(plans.items()))
     fatal, problems, warnings = [], [], []
     fixed = target in ("c-q15", "c-q31")
     for ch in channels:
@@ -289,17 +427,27 @@ def report_for_plans(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, t
             problems.append(f"channel {ch.channel}: the {target} rounding error can reach "
                             f"{ch.error_bound * 100:.3f} % of full scale "
                             f"(limit {ERROR_BOUND_LIMIT * 100:g} %)")
+        f = ch.figures
+        if f is not None and all(s.stable for s in ch.stages) \
+                and not f.holds(_float_limit(target)):
+            problems.append(f"channel {ch.channel}: the {target} code "
+                            f"({STRUCTURE_NAMES[ch.structure]}) is off by "
+                            f"{f.vector_error:.2g} of peak on the test vectors and its DC "
+                            f"gain by {f.dc_error:.2g} (tolerance "
+                            f"{FLOAT_TOLERANCE[target]:g})")
     return QuantizationReport(target, float(rate_hz), channels, tuple(fatal), tuple(problems),
-                              tuple(warnings), _suggestion(plans, rate_hz, target))
+                              tuple(warnings), _suggestion(plans, rate_hz, target),
+                              float(vectors_seconds))
 
 
 def _suggestion(plans: Mapping[str, Sequence[StagePlan]], rate_hz: float, target: str) -> str:
     freqs = [f for p in plans.values() for s in p for f in s.freqs_hz]
     ratio = f" (lowest now {min(freqs) / rate_hz * 100:.2g} % of the rate)" if freqs else ""
     better = {"c-q15": "use --target c-q31", "c-q31": "use --target c-float",
-              "c-float": "use --double"}.get(target, "use another target")
-    return (f"{better}, or raise the cutoff-to-rate ratio{ratio}, e.g. by lowering the "
-            "sample rate before the filter")
+              "c-float": "use --double (C double arithmetic)"}.get(target, "")
+    better = f"{better}, or raise" if better else "raise"
+    return (f"{better} the cutoff-to-rate ratio{ratio}, e.g. by lowering the sample rate "
+            "(decimating) before the filter")
 
 
 def quantization_report(designs: Sequence[Any] | Mapping[str, Sequence[Any]], rate_hz: float,

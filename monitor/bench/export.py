@@ -117,7 +117,8 @@ def _sources(target: str, directory: Path, n: int) -> None:
 
     spec = parse_chain(CHAIN)
     plan = build_plan(spec, ["signal"], 250.0, target, "bench", {"signal": 1.0})
-    report = report_for_plans({"signal": plan.channels[0].plans}, 250.0, target)
+    report = report_for_plans({"signal": plan.channels[0].plans}, 250.0, target,
+                              vectors_seconds=0.1)
     texts = export_texts(spec, plan, report, "bench.toml", 0.1)
     write_files(directory, {k: v for k, v in texts.items() if k in ("bench.h", "bench.c")})
     if target == "c-float":

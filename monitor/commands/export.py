@@ -29,8 +29,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--rate", type=positive_float, metavar="HZ",
                         help="sample rate the firmware runs at (default: the chain's rate_hz)")
     parser.add_argument("--target", required=True, choices=TARGET_CHOICES,
-                        help="c-float (transposed DF2, single precision), c-q15 or c-q31 "
-                             "(direct form I, fixed point)")
+                        help="c-float (single precision; transposed DF2, or the delta form "
+                             "where poles crowd z = 1), c-q15 or c-q31 (direct form I, "
+                             "fixed point)")
     parser.add_argument("-o", "--output", required=True, metavar="DIR",
                         help="directory for NAME.h, NAME.c, NAME_selftest.c, "
                              "NAME_vectors.csv and README.md")
@@ -110,7 +111,8 @@ def run(args: argparse.Namespace) -> int:
         plan = build_plan(spec, channels, rate, args.target, prefix, full_scales, args.double)
         report = report_for_plans({ch.name: ch.plans for ch in plan.channels}, rate,
                                   plan.report_target,
-                                  {ch.name: ch.full_scale for ch in plan.channels})
+                                  {ch.name: ch.full_scale for ch in plan.channels},
+                                  args.vectors_seconds)
     except ValueError as exc:
         raise UserError(f"{args.chain}: {str(exc).rstrip('.')}.") from None
     print(report.format_text())

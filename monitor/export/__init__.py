@@ -17,12 +17,19 @@ from monitor.export.plan import ExportPlan
 def export_texts(spec: ChainSpec, plan: ExportPlan, report: QuantizationReport,
                  chain_path: str, vectors_seconds: float = 4.0, forced: bool = False
                  ) -> dict[str, str]:
-    """File name -> text of NAME.h, NAME.c, NAME_selftest.c, NAME_vectors.csv, README.md."""
+    """File name -> text of NAME.h, NAME.c, NAME_selftest.c, NAME_vectors.csv, README.md.
+
+    Float channels get the biquad structure the report chose; the report must have judged
+    the same vectors_seconds (ValueError otherwise)."""
     from monitor.export.ccode import header, source
     from monitor.export.readme import readme_text
     from monitor.export.selftest import selftest_source
     from monitor.export.vectors import vectors_csv
 
+    if not plan.fixed and abs(report.vectors_seconds - vectors_seconds) > 1e-12:
+        raise ValueError(f"the report judged {report.vectors_seconds:g} s of test vectors, "
+                         f"the export writes {vectors_seconds:g} s; give both the same")
+    plan = plan.with_structures({c.channel: c.structure for c in report.channels})
     p = plan.prefix
     return {
         f"{p}.h": header(plan),

@@ -1,7 +1,9 @@
 """C99 source of an ExportPlan: NAME.h and NAME.c (no heap, no libm, no library calls).
 
-Float targets run transposed direct form II biquads; Q15/Q31 run direct form I with the
-integer arithmetic that filters.fixedpoint models exactly (see its module docstring).
+Float targets run transposed direct form II biquads, or the delta form where the
+quantization report chose it for a channel (filters.float32model models both operation for
+operation); Q15/Q31 run direct form I with the integer arithmetic that filters.fixedpoint
+models exactly (see its module docstring).
 Every channel gets a state struct NAME_<ch>_chain and NAME_<ch>_init/_reset/_step.
 A chain starts at its first sample: each stage is primed at its own first input by its
 start policy (steady: as if that input had held forever; zero: from rest), then stepped.
@@ -14,7 +16,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from filters.fixedpoint import FixedStage, QFormat, StagePlan, fix_stage, q_format
-from monitor.export.chelpers import FIXED_HELPERS, FLOAT_HELPERS, MEDIAN_HELPERS
+from filters.float32model import section_rows
+from monitor.export.chelpers import DELTA_HELPERS, FIXED_HELPERS, FLOAT_HELPERS, MEDIAN_HELPERS
 from monitor.export.plan import ExportChannel, ExportPlan
 
 
@@ -49,9 +52,15 @@ def c_types(plan: ExportPlan) -> CTypes:
     return CTypes("float")
 
 
-def _member(plan: StagePlan, j: int, t: str, fixed: bool) -> str:
+def _uses_delta(plan: ExportPlan) -> bool:
+    return not plan.fixed and any(ch.structure == "delta" and any(p.form == "biquads"
+                                                                  for p in ch.plans)
+                                  for ch in plan.channels)
+
+
+def _member(plan: StagePlan, j: int, t: str, fixed: bool, structure: str = "tdf2") -> str:
     if plan.form == "biquads":
-        kind = "df1" if fixed else "tdf2"
+        kind = "df1" if fixed else structure
         return f"    PFX_{kind} s{j}[{len(plan.sos)}];"
     if plan.form == "moving-average":
         extra = "PFX_acc sum;" if fixed else f"{t} sum, fresh;"
@@ -86,6 +95,9 @@ def header(plan: ExportPlan) -> str:
         ]
     else:
         lines.append("typedef struct { PFX_sample s1, s2; } PFX_tdf2;")
+        if _uses_delta(plan):
+            lines.append("typedef struct { PFX_sample s1, s2, e1, e2; } PFX_delta;"
+                         "  /* delta form: states and their compensations */")
     for ch in plan.channels:
         scale = f", full scale +-{ch.full_scale:g}" if plan.fixed else ""
         if plan.fixed:  # sample = round(reading / FULL_SCALE * 2^F), saturated
@@ -96,8 +108,8 @@ def header(plan: ExportPlan) -> str:
                   + " */", "typedef struct {", "    int started;"]
         if not plan.fixed:
             lines.append("    PFX_sample last;  /* last finite input */")
-        lines += [m for j, p in enumerate(ch.plans) if (m := _member(p, j, "PFX_sample",
-                                                                    plan.fixed))]
+        lines += [m for j, p in enumerate(ch.plans)
+                  if (m := _member(p, j, "PFX_sample", plan.fixed, ch.structure))]
         lines += [f"}} PFX_{ch.ident}_chain;", "",
                   "/* Prepare a new state: the next step starts every stage at its input. */",
                   f"void PFX_{ch.ident}_init(PFX_{ch.ident}_chain *c);",
@@ -112,13 +124,9 @@ def header(plan: ExportPlan) -> str:
 def _coef_table(ch: ExportChannel, j: int, plan: StagePlan, fixed: FixedStage | None,
                 t: CTypes) -> str:
     name = f"PFX_{ch.ident}_c{j}"
-    if fixed is None:
-        rows = []
-        for row in plan.sos:
-            den = 1.0 + row[4] + row[5]
-            dc = (row[0] + row[1] + row[2]) / den if den else 0.0
-            vals = [row[0], row[1], row[2], row[4], row[5], dc]
-            rows.append("    {" + ", ".join(t.literal(v) for v in vals) + "}")
+    if fixed is None:  # the table filters.float32model runs: tdf2 or delta layout
+        rows = ["    {" + ", ".join(t.literal(v) for v in vals) + "}"
+                for vals in section_rows(plan.sos, ch.structure)]
         return (f"static const PFX_sample {name}[{len(rows)}][6] = {{\n"
                 + ",\n".join(rows) + "\n};")
     fmt = fixed.fmt
@@ -142,7 +150,7 @@ def _stage_step(ch: ExportChannel, j: int, plan: StagePlan, fixed: FixedStage | 
                 t: CTypes) -> str:
     s = f"c->s{j}"
     if plan.form == "biquads":  # one call per section: constant coefficients fold in
-        one = "PFX_df1_step" if fixed is not None else "PFX_tdf2_step"
+        one = "PFX_df1_step" if fixed is not None else f"PFX_{ch.structure}_step"
         ref = "&" if fixed is not None else ""
         return "\n    ".join(f"v = {one}(&{s}[{i}], {ref}PFX_{ch.ident}_c{j}[{i}], v);"
                               for i in range(len(plan.sos)))
@@ -165,7 +173,9 @@ def _stage_prime(ch: ExportChannel, j: int, plan: StagePlan, fixed: FixedStage |
     s = f"c->s{j}"
     u = "v" if plan.start == "steady" else "0"
     if plan.form == "biquads":
-        return f"PFX_cascade_prime({s}, PFX_{ch.ident}_c{j}, {len(plan.sos)}u, {u});"
+        prime = "PFX_delta_prime" if fixed is None and ch.structure == "delta" \
+            else "PFX_cascade_prime"
+        return f"{prime}({s}, PFX_{ch.ident}_c{j}, {len(plan.sos)}u, {u});"
     if plan.form == "moving-average":
         extra = "" if fixed is not None else f", &{s}.fresh"
         return f"PFX_mavg_prime({s}.buf, {plan.window}u, &{s}.pos, &{s}.sum{extra}, {u});"
@@ -192,7 +202,7 @@ def source(plan: ExportPlan) -> str:
                    .replace("LIMIT_MIN", f"{t.limit}_MIN")
                    .replace("ACC_MAX", f"INT{fmt.acc_bits}_MAX").replace("UACC", t.uacc))
     else:
-        helpers = FLOAT_HELPERS
+        helpers = FLOAT_HELPERS + ("\n" + DELTA_HELPERS if _uses_delta(plan) else "")
     parts.append(helpers)
     if "median" in forms:
         parts.append(MEDIAN_HELPERS)
@@ -203,7 +213,9 @@ def source(plan: ExportPlan) -> str:
             parts.append(f"/* {b}: bypassed in the chain file, not exported */")
         for j, (p, f) in enumerate(zip(ch.plans, fixed, strict=True)):
             if p.form == "biquads":
-                parts.append(f"/* {p.label}, start {p.start} */\n" + _coef_table(ch, j, p, f, t))
+                form = "" if plan.fixed else f", {ch.structure}"
+                parts.append(f"/* {p.label}, start {p.start}{form} */\n"
+                             + _coef_table(ch, j, p, f, t))
         steps = [(p, _stage_step(ch, j, p, f, t)) for j, (p, f)
                  in enumerate(zip(ch.plans, fixed, strict=True))]
         primes = [_stage_prime(ch, j, p, f) for j, (p, f)

@@ -1,10 +1,12 @@
 """The C building blocks the generated NAME.c starts with (PFX_ is replaced by NAME_).
 
-Float: transposed direct form II biquad (one call per section), steady-state priming, running-sum
-moving average. Fixed point (LIMIT_/ACC_MAX/UACC filled per Q15/Q31): saturation, the
-wrap-safe direct form I biquad, priming by DC gain, exact moving average, gain. Median for
-both. All are `static inline`, so unused ones cost nothing and raise no warning. The
-integer arithmetic here is what filters.fixedpoint models; change both together.
+Float: transposed direct form II biquad (one call per section), steady-state priming,
+running-sum moving average; the delta-form biquad for sections with poles near z = 1
+(DELTA_HELPERS, modelled operation for operation by filters.float32model: change both
+together). Fixed point (LIMIT_/ACC_MAX/UACC filled per Q15/Q31): saturation, the wrap-safe
+direct form I biquad, priming by DC gain, exact moving average, gain. Median for both. All
+are `static inline`, so unused ones cost nothing and raise no warning. The integer
+arithmetic here is what filters.fixedpoint models; change both together.
 """
 
 FLOAT_HELPERS = """\
@@ -56,6 +58,46 @@ static inline void PFX_mavg_prime(PFX_sample *buf, uint32_t n, uint32_t *pos, PF
     *pos = 0;
     *sum = u * (PFX_sample)n;
     *fresh = 0;
+}
+"""
+
+DELTA_HELPERS = """\
+/* Delta-form biquad: transposed direct form II in the delayed accumulator z^-1/(1 - z^-1),
+ * c = b0, 2b0+b1, b0+b1+b2, 2+a1, 1+a1+a2, dc_gain (the coefficients as offsets from their
+ * values at z = 1, which float holds finely even when the poles crowd z = 1). Each state
+ * adds its increment by Kahan's compensated sum (e1, e2 keep what the addition lost), so
+ * small increments are never rounded away. Needs strict IEEE arithmetic: no -ffast-math. */
+static inline PFX_sample PFX_delta_step(PFX_delta *s, const PFX_sample *c, PFX_sample x)
+{
+    PFX_sample y = c[0] * x + s->s1;
+    PFX_sample d1 = c[1] * x - c[3] * y + s->s2;
+    PFX_sample d2 = c[2] * x - c[4] * y;
+    PFX_sample t, u;
+    t = d1 - s->e1;
+    u = s->s1 + t;
+    s->e1 = (u - s->s1) - t;
+    s->s1 = u;
+    t = d2 - s->e2;
+    u = s->s2 + t;
+    s->e2 = (u - s->s2) - t;
+    s->s2 = u;
+    return y;
+}
+
+/* Steady state at input u (u = 0: rest): y = dc_gain u and the states that make the next
+ * increments zero. */
+static inline void PFX_delta_prime(PFX_delta *s, const PFX_sample (*c)[6], unsigned n,
+                                   PFX_sample u)
+{
+    unsigned i;
+    for (i = 0; i < n; i++) {
+        PFX_sample y = c[i][5] * u;
+        s[i].s1 = y - c[i][0] * u;
+        s[i].s2 = c[i][3] * y - c[i][1] * u;
+        s[i].e1 = 0;
+        s[i].e2 = 0;
+        u = y;
+    }
 }
 """
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import re
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 from filters.fixedpoint import StagePlan
@@ -14,7 +14,7 @@ TARGETS: tuple[str, ...] = ("c-float", "c-q15", "c-q31")
 GENERIC_CHANNEL = "signal"
 _IDENT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*\Z")
 # NAME_<x>_step is a helper of the generated C for these x: a channel so named gets "_ch".
-_HELPER_NAMES = frozenset(("tdf2", "df1", "cascade", "mavg", "median"))
+_HELPER_NAMES = frozenset(("tdf2", "delta", "df1", "cascade", "mavg", "median"))
 _C_RESERVED = frozenset(
     "auto break case char const continue default do double else enum extern float for goto "
     "if inline int long register restrict return short signed sizeof static struct switch "
@@ -31,6 +31,8 @@ class ExportChannel:
     bypassed:   labels of bypassed stages (documented, not exported).
     full_scale: units that map to +-1.0 in Q15/Q31 (and the vectors' amplitude).
     designs:    the StageDesigns behind `plans` (for lag figures).
+    structure:  float targets: the biquad structure, "tdf2" or "delta" (the quantization
+                report chooses it; see filters.float32model).
     """
 
     name: str
@@ -39,6 +41,7 @@ class ExportChannel:
     bypassed: tuple[str, ...]
     full_scale: float
     designs: tuple[Any, ...] = ()
+    structure: str = "tdf2"
 
 
 @dataclass(frozen=True)
@@ -58,6 +61,14 @@ class ExportPlan:
     @property
     def report_target(self) -> str:
         return "c-double" if self.double else self.target
+
+    def with_structures(self, structures: dict[str, str]) -> ExportPlan:
+        """The plan with each float channel's biquad structure (channel name -> structure)."""
+        if self.fixed:
+            return self
+        channels = tuple(replace(ch, structure=structures.get(ch.name, ch.structure))
+                         for ch in self.channels)
+        return replace(self, channels=channels)
 
 
 def c_identifier(text: str) -> str:

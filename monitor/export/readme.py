@@ -55,18 +55,55 @@ def _api(plan: ExportPlan) -> list[str]:
     ]
 
 
-def _scaling(plan: ExportPlan) -> list[str]:
+def _structures(plan: ExportPlan, report: QuantizationReport) -> list[str]:
+    """One line per float channel with biquads: its structure and why."""
+    by_name = {c.channel: c for c in report.channels}
+    lines = []
+    for ch in plan.channels:
+        if not any(p.form == "biquads" for p in ch.plans):
+            continue
+        q = by_name.get(ch.name)
+        if ch.structure == "delta":
+            plain = q.plain if q is not None else None
+            why = (f"plain transposed direct form II would be off by "
+                   f"{max(plain.vector_error, plain.dc_error):.2g}" if plain is not None
+                   else "chosen for this export")
+            lines.append(f"- `{ch.name}`: delta form ({why}).")
+        else:
+            lines.append(f"- `{ch.name}`: transposed direct form II (it holds the chain, "
+                         "at the lower cost).")
+    if not lines:
+        return []
+    return ["Biquad structure per channel:", "", *lines, ""]
+
+
+def _scaling(plan: ExportPlan, report: QuantizationReport) -> list[str]:
     if not plan.fixed:
         kind = "double" if plan.double else "single precision (float)"
         return ["## Arithmetic", "",
                 f"Samples are in the channel's own units, {kind}. IIR stages run as cascades "
-                "of transposed direct form II biquads (coefficients b0 b1 b2 a1 a2 as "
-                "designed, a0 = 1). Moving averages keep a running sum over a circular "
+                "of biquads in one of two structures. Transposed direct form II "
+                "(`_tdf2_step`, table b0 b1 b2 a1 a2 dc_gain as designed, a0 = 1) is the "
+                "cheaper. The delta form (`_delta_step`, table b0, 2b0+b1, b0+b1+b2, 2+a1, "
+                "1+a1+a2, dc_gain) replaces each delay by a delayed accumulator, so the "
+                "table holds the coefficients as offsets from their values at z = 1: when "
+                "the cutoff is far below the rate the poles crowd z = 1, 1 + a1 + a2 is "
+                "tiny, and float cannot hold a1 and a2 finely enough for it (the DC gain "
+                "drifts), while the offsets keep every digit. Its states add their "
+                "increments with Kahan's compensated sum, so small increments are not "
+                "rounded away; it costs about twice the instructions. tunetrace runs the "
+                "exact operations of this C on the test vectors and picks transposed "
+                "direct form II when that holds the chain, else the delta form.", "",
+                *_structures(plan, report),
+                "Moving averages keep a running sum over a circular "
                 "buffer, refreshed at every lap so rounding does not accumulate. Medians "
                 "insert each sample into a sorted window (no heap, no sort call). A NaN or "
                 "infinite input counts as a missing sample, as on the host: it passes "
-                "through to the output and the stages see the last finite input instead "
-                "(do not build with -ffast-math, which removes that check).", ""]
+                "through to the output and the stages see the last finite input instead. "
+                "Build with strict IEEE arithmetic: never -ffast-math (it removes that "
+                "check and the delta form's compensation); -std=c99 (or "
+                "-ffp-contract=off) keeps gcc from fusing multiply-adds, so the code "
+                "computes exactly what tunetrace modelled.", ""]
     q = plan.target[2:].upper()
     f, acc = (15, 32) if q == "Q15" else (31, 64)
     lines = ["## Q format and scaling", "",
@@ -101,7 +138,7 @@ def _scaling(plan: ExportPlan) -> list[str]:
     return lines
 
 
-def _build(plan: ExportPlan) -> list[str]:
+def _build(plan: ExportPlan, report: QuantizationReport) -> list[str]:
     p = plan.prefix
     k = len(plan.channels)
     lines = ["## Build and check against the vectors", "",
@@ -121,7 +158,7 @@ def _build(plan: ExportPlan) -> list[str]:
                   "Fixed point must match bit for bit. The vectors end with a full-scale "
                   "square wave, so they also prove the saturation."]
     else:
-        tol = "1e-12" if plan.double else "1e-5"
+        tol = f"{report.tolerance:g}"
         lines += [
             "paste -d, got.csv want.csv | awk -F, -v k=" + str(k) + " -v tol=" + tol + " '"
             "{ for (i = 1; i <= k; i++) { d = $i - $(i + k); if (d < 0) d = -d; "
@@ -131,8 +168,10 @@ def _build(plan: ExportPlan) -> list[str]:
             ": 1); print \"column \" i \": max error \" r \" of peak\"; if (r > tol) bad = 1 }"
             " exit bad }'",
             "```", "",
-            f"The expected values come from a float64 model, so expect differences up to "
-            f"about {tol} of each column's peak."]
+            f"The expected values come from the float64 chain; the check passes when every "
+            f"column is within {tol} of its peak. The quantization report below ran the "
+            f"exact operations of this C on these vectors: \"{report.target} holds this "
+            f"chain\" means its error there and its DC gain error are both within {tol}."]
     lines += ["", "The self-test reads one row of comma-separated inputs per line on stdin "
               "and prints one row of outputs per line; a bad row stops it with the line "
               "number on stderr.", ""]
@@ -168,6 +207,6 @@ def readme_text(plan: ExportPlan, report: QuantizationReport, chain_path: str,
                   f"`{p}_{GENERIC_CHANNEL}_chain` per such channel on the board, or export "
                   "with --channels to name them."]
     lines.append("")
-    lines += _api(plan) + _scaling(plan) + _build(plan)
+    lines += _api(plan) + _scaling(plan, report) + _build(plan, report)
     lines += ["## Quantization report", "", "```", report.format_text(), "```", ""]
     return "\n".join(lines)

@@ -85,7 +85,7 @@ def export_build(tmp_path_factory):
         scales = {c: full_scale for c in channels}
         plan = build_plan(spec, channels, rate, target, name, scales, double)
         report = report_for_plans({c.name: c.plans for c in plan.channels}, rate,
-                                  plan.report_target, scales)
+                                  plan.report_target, scales, seconds)
         texts = export_texts(spec, plan, report, "test.toml", seconds)
         directory = tmp_path_factory.mktemp(f"{target}{'-double' if double else ''}")
         write_files(directory, texts)

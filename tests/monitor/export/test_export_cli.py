@@ -182,11 +182,15 @@ def test_a_mixed_chain_adds_the_generic_chain_for_other_channels(chain, tmp_path
 
 
 def test_float32_too_coarse_suggests_double(chain, tmp_path, capsys):
-    path = chain('rate_hz = 1000.0\n[[stage]]\nkind = "butterworth"\norder = 8\n'
-                 'cutoff_hz = 0.1\n', "creep.toml")
-    code, _, err = export(capsys, path, "--target", "c-float", "-o", tmp_path / "f")
-    assert code == 2 and "use --double" in err
+    # a 0.2 Hz band-pass at 100 Hz (1000 Hz rate): poles so close to the unit circle,
+    # away from z = 1, that neither float32 structure holds it; double does
+    path = chain('rate_hz = 1000.0\n[[stage]]\nkind = "chebyshev1"\nband = "bandpass"\n'
+                 'order = 4\nlow_hz = 100.0\nhigh_hz = 100.2\nripple_db = 0.5\n', "creep.toml")
+    code, out, err = export(capsys, path, "--target", "c-float", "-o", tmp_path / "f")
+    assert code == 2 and "use --double" in err and "decimating" in err
+    assert "of peak on the test vectors" in err and "tolerance 1e-05" in err
     one_sentence(err)
+    assert not (tmp_path / "f").exists()
     assert export(capsys, path, "--target", "c-float", "--double", "-o", tmp_path / "f")[0] == 0
     assert "typedef double creep_sample;" in (tmp_path / "f" / "creep.h").read_text()
 
