@@ -60,21 +60,24 @@ class Built:
 @pytest.fixture(scope="module")
 def export_build(tmp_path_factory):
     """export_build(chain_text, target, channels=None, full_scale=1.0, double=False,
-    rate=250.0, seconds=2.0) -> Built (files written and the self-test compiled).
+    rate=250.0, seconds=2.0, structure="auto") -> Built (files written and the self-test
+    compiled; `structure` forces the float biquad structure as the report allows).
     Identical requests within a test module share one build (each takes a gcc run)."""
     gcc = need("gcc")
     cache: dict[tuple, Built] = {}
 
     def make(chain_text: str, target: str, channels=None, full_scale=1.0, double=False,
-             rate: float = 250.0, seconds: float = 2.0, name: str = "weigh") -> Built:
+             rate: float = 250.0, seconds: float = 2.0, name: str = "weigh",
+             structure: str = "auto") -> Built:
         key = (chain_text, target, tuple(channels or ()), full_scale, double, rate, seconds,
-               name)
+               name, structure)
         if key not in cache:
             cache[key] = build(chain_text, target, channels, full_scale, double, rate,
-                               seconds, name)
+                               seconds, name, structure)
         return cache[key]
 
-    def build(chain_text, target, channels, full_scale, double, rate, seconds, name) -> Built:
+    def build(chain_text, target, channels, full_scale, double, rate, seconds, name,
+              structure) -> Built:
         from filters.chainfile import parse_chain
         from filters.fixedreport import report_for_plans
         from monitor.export import export_texts, write_files
@@ -85,9 +88,10 @@ def export_build(tmp_path_factory):
         scales = {c: full_scale for c in channels}
         plan = build_plan(spec, channels, rate, target, name, scales, double)
         report = report_for_plans({c.name: c.plans for c in plan.channels}, rate,
-                                  plan.report_target, scales, seconds)
+                                  plan.report_target, scales, seconds, structure)
         texts = export_texts(spec, plan, report, "test.toml", seconds)
-        directory = tmp_path_factory.mktemp(f"{target}{'-double' if double else ''}")
+        plan = plan.with_structures({c.channel: c.structure for c in report.channels})
+        directory = tmp_path_factory.mktemp(f"{target}{'-double' if double else ''}-{structure}")
         write_files(directory, texts)
         exe = directory / f"{name}_selftest"
         done = subprocess.run([gcc, *CFLAGS, "-o", str(exe), str(directory / f"{name}_selftest.c"),
