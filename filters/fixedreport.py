@@ -204,7 +204,7 @@ def _float_lines(ch: ChannelQuantization, tolerance: float) -> list[str]:
     if ch.structure == "delta" and ch.plain is not None:
         why = (f" (plain transposed direct form II would be off by "
                f"{max(ch.plain.vector_error, ch.plain.dc_error):.2g})")
-    settled = "" if f.dc_settled else ", compared with the float64 chain at that sample"
+    settled = "" if f.dc_settled else ", not reached yet: compared with the float64 chain"
     return [f"  biquad structure: {STRUCTURE_NAMES[ch.structure]}{why}",
             f"  model of the C on the test vectors: max error {f.vector_error:.3g} of peak "
             f"(tolerance {tolerance:g})",
