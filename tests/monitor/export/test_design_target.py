@@ -33,3 +33,20 @@ def test_design_target_prints_the_quantization_report(tmp_path, capsys):
     assert set(report["channels"]) == {"load", "other channels"}
     assert main(["design", str(path)]) == 0
     assert "Quantization" not in capsys.readouterr().out
+
+
+def test_design_target_c_float_states_structure_vector_error_and_dc_gain(tmp_path, capsys):
+    path = tmp_path / "slow.toml"
+    path.write_text(CHAIN.replace("250.0", "1000.0"))
+    assert main(["design", str(path), "--target", "c-float"]) == 0
+    out = capsys.readouterr().out
+    assert "Quantization for c-float at 1000 Hz" in out
+    assert "biquad structure: delta form" in out and "of peak (tolerance 1e-05)" in out
+    assert "DC gain" in out and "c-float holds this chain." in out
+    assert main(["design", str(path), "--target", "c-float", "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)["quantization"]
+    load = report["channels"]["load"]
+    assert report["ok"] is True and report["tolerance"] == 1e-5
+    assert load["structure"] == "delta" and load["vector_error_of_peak"] < 1e-5
+    # handbook: a Butterworth low-pass has unity DC gain (times the EMA's, also 1)
+    assert abs(load["dc_gain"] - 1.0) < 1e-5 and abs(load["dc_gain_designed"] - 1.0) < 1e-9
