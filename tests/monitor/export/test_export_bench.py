@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import pytest
+
 
 def test_export_bench_counts_instructions_per_sample(gcc, valgrind):
     from monitor.bench.export import run
@@ -15,3 +17,8 @@ def test_export_bench_counts_instructions_per_sample(gcc, valgrind):
         assert metrics[f"export_{key}_instr_ratio"] == generated / reference
         assert isinstance(metrics[f"export_{key}_instr_ok"], bool)
     assert isinstance(metrics["export_instr_ok"], bool)
+    # the delta form does more per section (compensated state sums) than plain TDF2
+    delta = metrics["export_float_delta_step_instr_per_sample"]
+    assert delta > metrics["export_float_step_instr_per_sample"]
+    assert metrics["export_float_delta_instr_ratio"] == pytest.approx(
+        delta / metrics["export_float_reference_instr_per_sample"])
