@@ -98,6 +98,7 @@ def test_holds_means_the_readme_check_passes_on_the_compiled_code(name, tmp_path
         assert name == "narrow-bandpass-1000Hz"          # the one chain float32 cannot hold
         return
     assert code == 0, err
+    assert "-v tol=1e-05" in (out / "README.md").read_text()   # the report's tolerance
     done = run_readme_recipe(out)
     assert done.returncode == 0, done.stdout + done.stderr
     errors = [float(v) for v in re.findall(r"max error (\S+) of peak", done.stdout)]
