@@ -2,7 +2,13 @@
 
 FramedSource is what the pipeline reads for serial devices, pyserial URLs, stdin
 and sim://: bytes -> frames -> Block, with host timestamps and the sample rate
-(declared, from device time, or estimated from arrival).
+(declared by the user or the board, from device time, or estimated from arrival
+by monitor.arrival_rate).
+
+Gap order: a gap the byte source reports during a read that also brought data
+happened after that data. Such a read returns its block and holds the gap; the
+next read_block returns None and releases it, so the pipeline (which writes a
+read's gaps before its block) puts the gap line after the rows before the event.
 """
 
 from __future__ import annotations
@@ -12,9 +18,10 @@ from typing import Any
 
 import numpy as np
 
+from monitor.arrival_rate import ArrivalRate, SessionRate
 from monitor.block import Block, Schema
 from monitor.counters import BadFrames
-from monitor.decoding import ArrivalRate, TextDecoder
+from monitor.decoding import TextDecoder
 
 BATCH_BYTES = 65536            # most bytes a live source decodes in one block
 
@@ -43,14 +50,12 @@ class FramedSource:
         self._arrival = ArrivalRate()
         self._last_read: float | None = None
         self._last_t = -np.inf
+        self._held_gaps: list[str] = []      # came after the rows of the last block
+        self._ready_gaps: list[str] = []
 
     @property
     def schema(self) -> Schema | None:
         return self.decoder.schema
-
-    @property
-    def state(self) -> str:
-        return self.byte_source.state
 
     @property
     def dropped(self) -> int:
@@ -63,6 +68,10 @@ class FramedSource:
     def read_block(self, timeout: float) -> Block | None:
         """Wait up to `timeout` s for bytes, take whatever else is already waiting (up to
         BATCH_BYTES, so a backlog is parsed in few large calls) and decode it."""
+        if self._held_gaps:                   # release the gaps that followed the last block
+            self._ready_gaps += self._held_gaps
+            self._held_gaps = []
+            return None
         data = self.byte_source.read(timeout)
         if data:
             parts, size = [data], len(data)
@@ -79,11 +88,17 @@ class FramedSource:
             frames += self.framer.flush()
         block = self.decoder.decode(frames, now) if frames else None
         self._collect_bad()
+        if frames:
+            # Every line is a sample period, a corrupted one too: count frames, not samples.
+            self._arrival.add(now, max(len(block) if block is not None else 0, len(frames)))
+        gaps = self.byte_source.take_gaps()
+        if gaps:
+            self._arrival.restart()           # after this read's samples: they came before
         if block is None or len(block) == 0:
+            self._ready_gaps += gaps
             return None
+        self._held_gaps += gaps
         n = len(block)
-        # Every line is a sample period, a corrupted one too: count frames, not good samples.
-        self._arrival.add(now, max(n, len(frames)))
         return Block(self._timestamps(now, n), block.values, block.t_dev, block.counter)
 
     def _timestamps(self, now: float, n: int) -> np.ndarray:
@@ -107,14 +122,18 @@ class FramedSource:
                 self._seen_bad[i] = counter.count
 
     def rate_hint(self) -> tuple[float, str] | None:
-        """(Hz, origin): declared, else from device time, else a settled arrival estimate."""
+        """(Hz, origin): declared by the user, else from device time (the board's own
+        clock), else declared by the board (sim://), else the settled arrival estimate."""
         if self.declared_rate is not None:
             return (float(self.declared_rate), "declared")
         device = self.decoder.device_rate() if hasattr(self.decoder, "device_rate") else None
         if device is not None:
             return (device, "device")
+        board = getattr(self.byte_source, "declared_rate", lambda: None)()
+        if board is not None:
+            return (float(board), "declared")
         if self._arrival.settled():
-            return (float(self._arrival.estimate()), "estimated")
+            return (float(self._arrival.rate()), "estimated")
         return None
 
     def device_jitter(self) -> float | None:
@@ -127,10 +146,24 @@ class FramedSource:
         """The provisional arrival-rate estimate (Hz) before it settles, for status lines."""
         return self._arrival.estimate()
 
+    def session_rate(self) -> SessionRate | None:
+        """The arrival rate measured over the whole stream so far, or None."""
+        return self._arrival.session()
+
+    @property
+    def state(self) -> str:
+        """The byte source's state; "connected" still while a gap waits to be released."""
+        state = self.byte_source.state
+        return "connected" if state == "ended" and self._held_gaps else state
+
     def take_gaps(self) -> list[str]:
-        gaps = self.byte_source.take_gaps()
-        if gaps:
-            self._arrival.restart()
+        """Source gaps (vanish, reconnect, end of input) and decoder gaps, oldest first."""
+        gaps, self._ready_gaps = self._ready_gaps, []
+        if not self._held_gaps:               # nothing held: anything new is in order
+            fresh = self.byte_source.take_gaps()
+            if fresh:
+                self._arrival.restart()
+            gaps += fresh
         decoder_gaps = getattr(self.decoder, "take_gaps", None)   # dropped frames, clock resets
         return gaps + decoder_gaps() if decoder_gaps else gaps
 

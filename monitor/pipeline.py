@@ -10,6 +10,15 @@ must be drained and the filter state stay continuous) but stops writing the
 ring, so the view holds still. A source with pause()/resume() (replay) is
 paused itself instead. Seek and SetSpeed go to sources that offer seek(s) and
 set_speed(x).
+
+Rate moves: when the source's (measured, not declared) rate later moves by more
+than RATE_MOVE_TOLERANCE from the rate the chain was designed at, the chain is
+redesigned at the new rate and continues bumplessly (ChainSet.continue_from);
+the status says so (notice, rate_moved_from) and a recording gets a
+`# rate_hz_changed:` line between the rows before and after the swap.
+
+Gap order: a source's take_gaps() after read_block() are the gaps that came
+before that block's rows (FramedSource holds back a gap that followed them).
 """
 
 from __future__ import annotations
@@ -33,6 +42,7 @@ from monitor.ring import DEFAULT_RING_CAPACITY, Ring
 
 READ_TIMEOUT_S = 0.05          # bounds how long stop() and commands wait
 COMMAND_QUEUE_SIZE = 64
+RATE_MOVE_TOLERANCE = 5e-3    # 0.5 %: a smaller move is measurement noise, not a new rate
 RATE_WAIT_NOTE = ("filtered = raw until the sample rate is known: estimating it from "
                   "arrival times (give --rate HZ to skip)")
 
@@ -116,6 +126,8 @@ class PipelineStatus:
     chain_note says why filtered equals raw while waiting for a rate; chain_error why a
     chain was refused or failed. error: the reader thread stopped on this unexpected error.
     jitter_s: spread of the device clock's sample intervals (s), when the stream has one.
+    rate_moved_from / rate_moved_at: the rate (Hz) the chain was designed at before the
+    newest redesign for a moved rate, and when (monotonic s); rate_redesigns counts them.
     """
 
     source_state: str = "connecting"
@@ -143,6 +155,9 @@ class PipelineStatus:
     warning: str | None = None
     jitter_s: float | None = None
     commands_dropped: int = 0
+    rate_moved_from: float | None = None
+    rate_moved_at: float | None = None
+    rate_redesigns: int = 0
 
 
 # -- the pipeline ----------------------------------------------------------------
@@ -173,6 +188,8 @@ class Pipeline:
             chain_spec.rate_hz if chain_spec is not None else None)
         self._chain: ChainSet | None = None
         self._chain_ready = False           # built for a known rate (or replaced by the user)
+        self._design_rate: float | None = None   # the rate the running chain was built for
+        self._refused_rate: float | None = None  # a moved rate the chain could not run at
         self._sink = sink
         self._commands: queue.Queue = queue.Queue(maxsize=COMMAND_QUEUE_SIZE)
         self._stop = threading.Event()
@@ -271,6 +288,7 @@ class Pipeline:
         if self.ring is None:
             self.ring = Ring(values.shape[1], self.ring_capacity)
         self._ensure_chain(values.shape[1])
+        self._follow_rate()
         try:
             filtered = self._chain.process(values)
         except Exception as exc:
@@ -299,6 +317,7 @@ class Pipeline:
             self._work.chain_note = RATE_WAIT_NOTE
             return
         self._chain_ready = True
+        self._design_rate = rate[0]
         self._work.chain_note = None
         if self.chain_spec is None:
             self._chain = ChainSet.identity(channels, rate[0])
@@ -308,6 +327,37 @@ class Pipeline:
         except ValueError as exc:
             self._work.chain_error = f"chain refused at {rate[0]:.6g} Hz: {exc}"
             self._chain = ChainSet.identity(channels, rate[0])
+
+    def _follow_rate(self) -> None:
+        """Redesign the chain when the measured rate moved more than RATE_MOVE_TOLERANCE."""
+        if not self._chain_ready or self._design_rate is None or self._declared is not None:
+            return
+        hint = self.source.rate_hint()
+        if hint is None or hint[1] in ("declared", "recording"):
+            return
+        new_rate, origin = float(hint[0]), hint[1]
+        old_rate = self._design_rate
+        if abs(new_rate - old_rate) <= RATE_MOVE_TOLERANCE * old_rate:
+            return
+        refused = self._refused_rate
+        if refused is not None and abs(new_rate - refused) <= RATE_MOVE_TOLERANCE * refused:
+            return
+        work, chain = self._work, self._chain
+        try:
+            new_chain = ChainSet(chain.spec, chain.channels, new_rate)
+        except ValueError as exc:
+            self._refused_rate = new_rate
+            work.chain_error = (f"the rate moved to {new_rate:.6g} Hz and the chain cannot "
+                                f"run there ({exc}); it stays designed at {old_rate:.6g} Hz")
+            return
+        new_chain.continue_from(chain)
+        self._chain, self._design_rate, self._refused_rate = new_chain, new_rate, None
+        redesigned = "chain redesigned" if chain.spec.stages else "no chain to redesign"
+        work.notice = (f"sample rate moved from {old_rate:.6g} to {new_rate:.6g} Hz "
+                       f"({origin}): {redesigned}")
+        work.rate_moved_from, work.rate_moved_at = old_rate, time.monotonic()
+        work.rate_redesigns += 1
+        self._to_sink("write_rate_change", new_rate, origin, old_rate)
 
     def _apply_commands(self) -> None:
         while True:
@@ -326,6 +376,7 @@ class Pipeline:
             if self._chain is not None:
                 command.chain.continue_from(self._chain)
             self._chain, self._chain_ready = command.chain, True
+            self._design_rate = command.chain.rate_hz
             work.chain_error = work.chain_note = None
         elif isinstance(command, ResetChain):
             if self._chain is not None:
@@ -359,8 +410,13 @@ class Pipeline:
     def _to_sink(self, method: str, *args: Any) -> None:
         if self._sink is None:
             return
+        target = getattr(self._sink, method, None)
+        if target is None:                  # an optional sink method (write_rate_change)
+            target = _inner_method(self._sink, method)
+            if target is None:
+                return
         try:
-            getattr(self._sink, method)(*args)
+            target(*args)
         except Exception as exc:  # OSError above all: a full disk must not stop the stream
             self._close_sink()
             self._work.recording_error = f"recording stopped: {exc}"
@@ -401,6 +457,18 @@ class Pipeline:
         with self._lock:
             work.commands_dropped = self._commands_dropped
             self._published = dataclasses.replace(work)
+
+
+def _inner_method(sink: Any, method: str) -> Any:
+    """`method` of the recorder inside a wrapping sink (commands.common.DeferredRecording
+    keeps it as `_writer`, commands.record's wrapper as `inner`), or None."""
+    for name in ("inner", "_writer"):
+        inner = getattr(sink, name, None)
+        if inner is not None:
+            found = getattr(inner, method, None) or _inner_method(inner, method)
+            if found is not None:
+                return found
+    return None
 
 
 def _sink_name(sink: Any) -> str | None:

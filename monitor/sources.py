@@ -101,11 +101,19 @@ class SerialSource(ByteSource):
         self._next_try = 0.0
         self._lost_at = 0.0
         self._closed = False
+        self._declared_rate: float | None = None
 
     def describe(self) -> str:
         if self.url.startswith("sim://"):
             return f"{self.url} (simulated weigh station)"
         return f"{self.url} @ {self.baud}"
+
+    def declared_rate(self) -> float | None:
+        """The rate the far end declares (Hz): the sim:// board does, a real port does not."""
+        rate = getattr(self._port, "declared_rate_hz", None)
+        if rate is not None:
+            self._declared_rate = float(rate)      # kept while the port is away
+        return self._declared_rate
 
     def _is_device_path(self) -> bool:
         return "://" not in self.url

@@ -3,10 +3,14 @@
 File format (contract in DESIGN.md, "Recording file"): comment header lines,
 the CSV header row `t_host,...`, then one row per sample; `# gap: <reason>`
 lines where reconnects or drops happened; `# stopped: <reason>` when a size or
-duration limit ended the recording. Rows reach the operating system at most
-100 ms after `write_block` returned: a killed process loses nothing older
-(the kernel keeps written data even on `kill -9`; only power loss needs the
-fsync done at `close`).
+duration limit ended the recording; `# rate_hz_changed: <Hz> (<origin>, was <Hz>)`
+where the live rate moved and the chain was redesigned; and, when it closes, the
+trailer `# rate_hz_measured: <Hz> (arrival, <n> samples)`: the rate measured over
+the whole recording from each block's arrival time (the time of its last row)
+with monitor.arrival_rate, which readers prefer to an estimated header rate.
+Rows reach the operating system at most 100 ms after `write_block` returned: a
+killed process loses nothing older (the kernel keeps written data even on
+`kill -9`; only power loss needs the fsync done at `close`).
 """
 
 from __future__ import annotations
@@ -21,10 +25,13 @@ from datetime import UTC, datetime
 import numpy as np
 
 from monitor import __version__
+from monitor.arrival_rate import ArrivalRate
 from monitor.block import Block, Schema
 from replay.csvtext import format_full_precision, format_rows, format_seconds, join_columns
 
 MAGIC = "# tunetrace recording 1"
+RATE_CHANGED_KEY = "rate_hz_changed"
+RATE_MEASURED_KEY = "rate_hz_measured"
 FLUSH_INTERVAL_S = 0.1
 # The background flusher wakes this long after the first unflushed row, well
 # inside FLUSH_INTERVAL_S even when the machine is busy.
@@ -150,6 +157,7 @@ class RecordingWriter:
         self._failed = False
         self._closed = False
         self._cond = threading.Condition()
+        self._arrival = ArrivalRate(live=False)     # the trailer's session rate
         self._file = open(self.path, "wb" if force else "xb", buffering=0)
         try:
             self._write_now(header_text(schema, source_description, rate_hz, rate_origin,
@@ -193,12 +201,15 @@ class RecordingWriter:
         with self._cond:
             self._raise_pending_error()
             if stop is None:
+                self._arrival.add(float(block.t_host[-1]), len(block))
                 self._append(text_rows, len(block))
                 if (self._pending_bytes > _MAX_PENDING_BYTES
                         or time.monotonic() - self._last_flush >= FLUSH_INTERVAL_S):
                     self._flush_or_fail()
                 return
             kept_text, kept_rows, reason = stop
+            if kept_rows:
+                self._arrival.add(float(block.t_host[kept_rows - 1]), kept_rows)
             self._append(kept_text, kept_rows)
             self._append(f"# stopped: {reason}\n", 0)
             self.full = reason
@@ -212,7 +223,23 @@ class RecordingWriter:
         with self._cond:
             self._raise_pending_error()
             self._append(f"# gap: {_one_line(reason)}\n", 0)
+            self._arrival.restart()
             self._flush_or_fail()
+
+    def write_rate_change(self, rate_hz: float, origin: str, previous_hz: float) -> None:
+        """Mark that the rate moved to `rate_hz` (Hz, from `origin`) here; flushes."""
+        if self.full or self._failed or self._closed:
+            return
+        with self._cond:
+            self._raise_pending_error()
+            self._append(f"# {RATE_CHANGED_KEY}: {float(rate_hz)!r} ({_one_line(origin)}, "
+                         f"was {float(previous_hz)!r})\n", 0)
+            self._flush_or_fail()
+
+    def measured_rate(self) -> tuple[float, int] | None:
+        """(Hz, samples) measured from arrival over the recording so far, or None."""
+        session = self._arrival.session()
+        return (session.rate_hz, self.rows) if session is not None else None
 
     def close(self) -> None:
         """Flush, fsync and close the file; idempotent. Raises an OSError not yet reported."""
@@ -223,6 +250,10 @@ class RecordingWriter:
             self._cond.notify_all()
             try:
                 if self._error is None and not self._failed:
+                    measured = self.measured_rate()
+                    if measured is not None:
+                        self._pending.append(f"# {RATE_MEASURED_KEY}: {measured[0]:.6f} "
+                                             f"(arrival, {measured[1]} samples)\n")
                     self._flush_locked()
                     os.fsync(self._file.fileno())
             except OSError as exc:

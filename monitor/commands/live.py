@@ -116,8 +116,12 @@ def _report_problems(status: Any, reported: set[str], err: TextIO) -> None:
             print(f"tunetrace: {text}", file=err, flush=True)
 
 
-def rate_text(status: Any) -> str:
-    """e.g. '250 Hz declared', '~249.8 Hz estimating', 'rate ?'."""
+RATE_MOVE_SHOWN_S = 10.0       # how long a stats line says that the rate moved
+
+
+def rate_text(status: Any, now: float | None = None) -> str:
+    """e.g. '250 Hz declared', '~249.8 Hz estimating', 'rate ?', and for RATE_MOVE_SHOWN_S
+    after a redesign at a moved rate '~1010 Hz estimated (moved from 1000 Hz, redesigned)'."""
     if status.rate_hz is None:
         return "rate ?"
     waiting = status.chain_note is not None and status.rate_origin == "estimated"
@@ -125,8 +129,18 @@ def rate_text(status: Any) -> str:
     origin = "estimating" if waiting else status.rate_origin
     jitter = getattr(status, "jitter_s", None)
     if status.rate_origin == "device" and jitter is not None:
-        return f"{status.rate_hz:.5g} Hz device (jitter {jitter * 1e6:.1f} us)"
-    return f"{prefix}{status.rate_hz:.5g} Hz {origin}"
+        text = f"{status.rate_hz:.5g} Hz device (jitter {jitter * 1e6:.1f} us)"
+    else:
+        text = f"{prefix}{status.rate_hz:.5g} Hz {origin}"
+    return text + rate_move_text(status, now)
+
+
+def rate_move_text(status: Any, now: float | None = None) -> str:
+    """' (moved from 1000 Hz, redesigned)' shortly after a redesign at a moved rate, else ''."""
+    moved_at = getattr(status, "rate_moved_at", None)
+    if moved_at is None or (now or time.monotonic()) - moved_at > RATE_MOVE_SHOWN_S:
+        return ""
+    return f" (moved from {status.rate_moved_from:.5g} Hz, redesigned)"
 
 
 def _channel_labels(pipeline: Any, count: int) -> list[str]:

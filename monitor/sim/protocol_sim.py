@@ -13,6 +13,8 @@ URL options (all optional), e.g. `sim://?rate=250&seed=1&channels=3`:
   glitch=P         probability per line or binary frame of a corruption (bad-frame
                    practice: a broken line, or a flipped bit the CRC catches), default 0
   drop=P           probability per sample that the board loses it (counter gaps), default 0
+  declare=0|1      1 (default): the board declares its rate (`declared_rate_hz`), as a
+                   board whose firmware states it; 0: the rate must be measured
 
 Writes to the port are accepted and ignored, as a board without a command
 parser would. pyserial documents this mechanism: a package listed in
@@ -43,7 +45,7 @@ class SimOptions:
         if parts.scheme != "sim":
             raise SerialException(f"expected a sim:// URL, got {url!r}")
         known = {"rate", "seed", "channels", "format", "crc", "header", "seq", "clock",
-                 "pace", "glitch", "drop"}
+                 "pace", "glitch", "drop", "declare"}
         query = urllib.parse.parse_qs(parts.query, keep_blank_values=True)
         unknown = sorted(set(query) - known)
         if unknown:
@@ -77,6 +79,7 @@ class SimOptions:
         self.pace = bool(number("pace", "1", int, 0, 1))
         self.glitch = number("glitch", "0", float, 0.0, 1.0)
         self.drop = number("drop", "0", float, 0.0, 1.0)
+        self.declare = bool(number("declare", "1", int, 0, 1))
 
 
 class Serial(SerialBase):
@@ -146,6 +149,12 @@ class Serial(SerialBase):
             if deadline is not None:
                 wait = min(wait, deadline - now)
             time.sleep(max(wait, 0.0005))
+
+    @property
+    def declared_rate_hz(self) -> float | None:
+        """The sample rate the board is configured with (Hz), unless declare=0."""
+        opts = self._options
+        return opts.rate_hz if opts is not None and opts.declare else None
 
     def write(self, data) -> int:
         if not self.is_open:

@@ -9,6 +9,8 @@ from typing import Any
 
 from textual.widgets import Static
 
+RATE_MOVE_SHOWN_S = 10.0       # the rate part says the rate moved for this long
+
 STATE_STYLES = {
     "connected": "bold #7fd18b", "connecting": "#e0c060", "reconnecting": "bold #f0a040",
     "ended": "bold #c07070",
@@ -76,6 +78,9 @@ def status_lines(status: Any, ui: UiState) -> tuple[str, str]:
         return "starting...", ui.notice
     rate = (f"{status.rate_hz:.4g} Hz ({status.rate_origin})" if status.rate_hz
             else "rate unknown yet")
+    if status.rate_hz and getattr(status, "rate_moved_at", None) is not None \
+            and time.monotonic() - status.rate_moved_at <= RATE_MOVE_SHOWN_S:
+        rate += f" moved from {status.rate_moved_from:.4g} Hz, chain redesigned"
     line1 = (f"{status.source_description}  {status.source_state}  {rate}  "
              f"frames {status.frames}  bad {status.bad}  dropped {status.dropped}")
     if ui.playback:

@@ -190,7 +190,8 @@ def test_flood_memory_bounded_and_drops_counted(pty_board, wait_for):
 def sim_pipeline(**kwargs) -> Pipeline:
     rate = kwargs.pop("rate", 250.0)
     declared = kwargs.pop("declared", True)
-    source = text_source(open_byte_source(f"sim://?rate={rate:g}&seed=3"),
+    declare = "" if declared else "&declare=0"          # the sim board declares its rate
+    source = text_source(open_byte_source(f"sim://?rate={rate:g}&seed=3{declare}"),
                          declared_rate=rate if declared else None)
     return Pipeline(source, rate_hz=rate if declared else None, **kwargs)
 
