@@ -1,4 +1,4 @@
-"""Text decoding: lines -> Block, with header detection, schema and rate estimates.
+"""Text decoding: lines -> Block, with header detection, schema and device-time rate.
 
 The first line fixes the delimiter (tab, semicolon, comma, else runs of
 spaces) and the width. If its fields are not all numbers it is a header that
@@ -21,6 +21,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from monitor.arrival_rate import ArrivalRate as ArrivalRate  # moved; re-exported
 from monitor.block import Block, Schema
 from monitor.counters import BadFrames
 from monitor.devicetime import DeviceClock, SequenceCounter
@@ -280,43 +281,3 @@ class TextDecoder:
         self._t_dev_steps.extend(steps[steps > 0][-512:].tolist())
         self._last_t_dev = float(t_dev[-1])
 
-
-class ArrivalRate:
-    """Sample rate estimated from when samples arrive, for boards that do not say it.
-
-    add(t, n) after each read that produced n samples at host time t (s).
-    estimate() -> Hz or None; settled() once SETTLE_S of arrivals and MIN_SAMPLES
-    are seen, and stays True (the estimate keeps updating). restart() after a gap
-    so the outage does not count as slow arrival.
-    """
-
-    SETTLE_S = 2.0
-    MIN_SAMPLES = 20
-
-    def __init__(self) -> None:
-        self._t0: float | None = None
-        self._t1 = 0.0
-        self._n = 0
-        self._last: float | None = None
-        self._settled = False
-
-    def add(self, t: float, n: int) -> None:
-        if self._t0 is None:                 # its samples arrived over an unknown time
-            self._t0, self._t1, self._n = t, t, 0
-            return
-        self._n += n
-        self._t1 = t
-        span = self._t1 - self._t0
-        if span > 0 and self._n >= 2:
-            self._last = self._n / span
-            if span >= self.SETTLE_S and self._n >= self.MIN_SAMPLES:
-                self._settled = True
-
-    def restart(self) -> None:
-        self._t0 = None
-
-    def estimate(self) -> float | None:
-        return self._last
-
-    def settled(self) -> bool:
-        return self._settled

@@ -2,7 +2,10 @@
 
 Contract (DESIGN.md, "Recording file"): `# tunetrace recording 1`, then
 `# key: value` lines (tool, started, source, rate_hz, channels, time_column,
-counter_column, chain), then the CSV header row. Plain CSV from other loggers
+counter_column, chain), then the CSV header row. A recording may end with the
+trailer `# rate_hz_measured: <Hz> (<method>, <n> samples)` (the rate measured
+over the whole session, see replay.writer); `parse_rate_trailer` reads it. Plain
+CSV from other loggers
 has just the header row; units may be given as `name [unit]` or `name[unit]`.
 """
 
@@ -19,6 +22,7 @@ MAX_HEADER_LINE = 1 << 16
 _TIME_BASES = ("t", "time", "timestamp", "t_host", "elapsed", "seconds", "millis", "micros")
 _TIME_SCALES = {"": 1.0, "s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6}
 _UNIT_RE = re.compile(r"^\s*(.*?)\s*\[([^\]]*)\]\s*$")
+_TRAILER_RE = re.compile(r"^# rate_hz_measured: (\S+) \((\w+), (\d+) samples\)$")
 
 
 class RecordingError(ValueError):
@@ -37,6 +41,8 @@ class RecordingHeader:
     time_column:    the column that gives t_host (seconds x time_scale), or None (rows / rate).
     ignored_columns: columns skipped because they do not hold numbers.
     notes:          other comment lines of the header, without the leading '# '.
+    measured_rate_hz, measured_method, measured_samples: the closing trailer (rate over
+                    the whole session, e.g. method "arrival"), None when it is missing or torn.
     """
 
     format_version: int | None = None
@@ -56,6 +62,24 @@ class RecordingHeader:
     ignored_columns: tuple[str, ...] = ()
     delimiter: str = ","
     notes: list[str] = field(default_factory=list)
+    measured_rate_hz: float | None = None
+    measured_method: str | None = None
+    measured_samples: int | None = None
+
+
+def parse_rate_trailer(line: str) -> tuple[float, str, int] | None:
+    """`# rate_hz_measured: 999.98 (arrival, 1234 samples)` -> (999.98, "arrival", 1234);
+    None for anything else (a torn or damaged trailer included)."""
+    match = _TRAILER_RE.match(line.rstrip("\r"))
+    if match is None:
+        return None
+    try:
+        rate = float(match.group(1))
+    except ValueError:
+        return None
+    if not (rate > 0 and rate < float("inf")):
+        return None
+    return rate, match.group(2), int(match.group(3))
 
 
 def split_unit(name: str) -> tuple[str, str]:

@@ -5,7 +5,9 @@ is parsed by numpy's C CSV parser. A chunk that does not parse is split in
 halves until the bad rows are isolated, so one bad row costs a few extra
 parses of its neighbourhood, never a Python loop over the whole file. Bad rows
 are counted, comment lines `# gap: ...` are surfaced where they stand, a torn
-last line is ignored and reported.
+last line is ignored and reported. The closing `# rate_hz_measured:` trailer is
+read from the file's tail when the file opens; `rate()` prefers it to a header
+rate that was only estimated early (a declared or device rate stays).
 """
 
 from __future__ import annotations
@@ -23,6 +25,7 @@ from replay.header import (
     MAX_HEADER_LINE,
     RecordingError,
     RecordingHeader,
+    parse_rate_trailer,
     read_header,
     split_unit,
     time_scale_of,
@@ -118,6 +121,8 @@ class Recording:
                 self.header, self._data_start = read_header(f, self.path)
             self._setup_columns(time_column)
             self._t_first, self._rate_estimate = self._peek()
+            if self.header.format_version:
+                self._read_trailer()
         except OSError as exc:
             raise _read_failed(self.path, exc) from None
 
@@ -153,14 +158,40 @@ class Recording:
         return None
 
     def rate(self) -> tuple[float, str] | None:
-        """(Hz, origin): --rate ("declared"), the header ("recording"), or estimated."""
+        """(Hz, origin): --rate ("declared"); else ("recording") a declared or device rate
+        of the header, else the closing trailer's rate measured over the whole session,
+        else the header's early estimate; else estimated from the first rows."""
         if self.rate_override:
             return float(self.rate_override), "declared"
-        if self.header.rate_hz:
-            return float(self.header.rate_hz), "recording"
+        h = self.header
+        if h.rate_hz and h.rate_origin in ("declared", "device"):
+            return float(h.rate_hz), "recording"
+        if h.measured_rate_hz:
+            return float(h.measured_rate_hz), "recording"
+        if h.rate_hz:
+            return float(h.rate_hz), "recording"
         if self._rate_estimate:
             return self._rate_estimate, "estimated"
         return None
+
+    @property
+    def rate_hz(self) -> float | None:
+        """The sample rate `rate()` chooses (Hz), or None."""
+        rate = self.rate()
+        return rate[0] if rate else None
+
+    @property
+    def rate_origin(self) -> str | None:
+        """Where rate_hz comes from: "declared" (--rate), "trailer" (measured over the
+        session), "header" (the header's rate line, with its own origin in
+        header.rate_origin), "estimated" (first rows), or None."""
+        rate = self.rate()
+        if rate is None or rate[1] != "recording":
+            return rate[1] if rate else None
+        h = self.header
+        if h.rate_hz and h.rate_origin in ("declared", "device"):
+            return "header"
+        return "trailer" if h.measured_rate_hz else "header"
 
     def events(self, start_s: float = 0.0) -> Iterator[Block | Gap]:
         """Blocks of consecutive rows and Gap marks, in file order, from start_s seconds
@@ -297,6 +328,24 @@ class Recording:
                     return [i for i, text in enumerate(fields) if _parses(text)]
         raise RecordingError(f"{self.path} has no data rows with {width} fields under its "
                              "header row; give a file with at least one row of readings.")
+
+    def _read_trailer(self) -> None:
+        """Take the `# rate_hz_measured:` line if it is the file's last complete line (a
+        torn one, without its newline, or one followed by rows is not trusted)."""
+        with _open(self.path) as f:
+            size = f.seek(0, os.SEEK_END)
+            back = min(size - self._data_start, 4096)
+            if back <= 0:
+                return
+            f.seek(size - back)
+            tail = f.read(back)
+        if not tail.endswith(b"\n"):
+            return
+        last = tail[:-1].rsplit(b"\n", 1)[-1].decode("utf-8", errors="replace")
+        found = parse_rate_trailer(last)
+        if found is not None:
+            h = self.header
+            h.measured_rate_hz, h.measured_method, h.measured_samples = found
 
     def _peek(self) -> tuple[float, float | None]:
         """t of the first row and a rate estimate from the first rows' spacing."""
