@@ -62,6 +62,11 @@ class SessionRate:
     span_s: float
 
 
+def warm_up() -> None:
+    """Import scipy.stats now (about 0.8 s), so the first fit does not stall a reader thread."""
+    import scipy.stats  # noqa: F401
+
+
 def robust_rate(t: np.ndarray, count: np.ndarray) -> tuple[float, float] | None:
     """(slope Hz, intercept) of cumulative `count` against arrival `t` (s), backlog cut.
 

@@ -18,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from monitor.arrival_rate import ArrivalRate, SessionRate
+from monitor.arrival_rate import ArrivalRate, SessionRate, warm_up
 from monitor.block import Block, Schema
 from monitor.counters import BadFrames
 from monitor.decoding import TextDecoder
@@ -48,6 +48,8 @@ class FramedSource:
         self.bad = BadFrames()
         self._seen_bad = [0, 0]
         self._arrival = ArrivalRate()
+        if declared_rate is None and getattr(byte_source, "declared_rate", lambda: None)() is None:
+            warm_up()                     # the rate may have to be measured: import scipy now
         self._last_read: float | None = None
         self._last_t = -np.inf
         self._held_gaps: list[str] = []      # came after the rows of the last block
