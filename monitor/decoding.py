@@ -3,8 +3,9 @@
 The first line fixes the delimiter (tab, semicolon, comma, else runs of
 spaces) and the width. If its fields are not all numbers it is a header that
 names the columns, `name[unit]` or `name [unit]`; otherwise the columns are
-named by `channels` or ch0, ch1, ... A device time column and a counter column
-(named by the caller) are taken out of the channels into Block.t_dev and
+named by `channels` or ch0, ch1, ... A device time column (named by the caller,
+else found by the shared rule of replay.timecolumn) and a counter column (named
+by the caller) are taken out of the channels into Block.t_dev and
 Block.counter. Bad lines (not UTF-8, wrong width, a field that is not a number,
 a different header) are counted in `bad` with the newest kept; the stream goes on.
 
@@ -25,6 +26,7 @@ from monitor.arrival_rate import ArrivalRate as ArrivalRate  # moved; re-exporte
 from monitor.block import Block, Schema
 from monitor.counters import BadFrames
 from monitor.devicetime import DeviceClock, SequenceCounter
+from replay.timecolumn import find_time_column, match_override, time_scale_of
 
 _UNIT = re.compile(r"^(.*?)\s*\[\s*(.*?)\s*\]$")
 
@@ -71,7 +73,9 @@ class TextDecoder:
 
     channels:       names for a stream without a header line (all columns, in order,
                     time and counter columns included); default ch0, ch1, ...
-    time_column:    name of the device time column, values in seconds.
+    time_column:    name of the device time column; without it a column the shared rule
+                    recognises (t, time, time_s, t_ms, ... see replay.timecolumn) is
+                    device time. Values in seconds, or in the unit its name carries.
     counter_column: name of the sequence counter column; gaps count as `dropped`.
     decode(frames, t_host) -> Block of the good lines, or None when none were good.
     """
@@ -95,6 +99,7 @@ class TextDecoder:
         self._header: bytes | None = None
         self._value_cols: np.ndarray | None = None
         self._time_col: int | None = None
+        self._time_scale = 1.0
         self._counter_col: int | None = None
         self._last_counter: int | None = None
         self._t_dev_steps: deque[float] = deque(maxlen=512)
@@ -174,23 +179,40 @@ class TextDecoder:
         pairs = [(name, unit) for name, (_, unit) in zip(names, pairs, strict=True)]
         missing = [(c, what) for c, what in ((self.time_column, "--time-column"),
                                              (self.counter_column, "--counter-column"))
-                   if c and c not in names]
+                   if c and (c not in names if what == "--counter-column"
+                             else match_override(names, c) is None)]
         if missing:
             column, what = missing[0]
             self.warning = (f"{what} {column!r} is not in the stream (columns: "
                             f"{', '.join(names)}); check the name")
-        self._time_col = names.index(self.time_column) if self.time_column in names else None
         self._counter_col = (names.index(self.counter_column)
                              if self.counter_column in names else None)
+        self._time_col, self._time_scale = self._find_time(pairs)
         special = {self._time_col, self._counter_col}
         cols = [i for i in range(len(pairs)) if i not in special]
         self._value_cols = np.array(cols, dtype=np.intp)
         self.schema = Schema(
             channels=tuple(pairs[i][0] for i in cols),
             units=tuple(pairs[i][1] for i in cols),
-            time_column=self.time_column if self._time_col is not None else None,
+            time_column=pairs[self._time_col][0] if self._time_col is not None else None,
             counter_column=self.counter_column if self._counter_col is not None else None,
         )
+
+    def _find_time(self, pairs: list[tuple[str, str]]) -> tuple[int | None, float]:
+        """(column index, seconds per unit) of the device time column, by the rule every
+        verb shares (replay.timecolumn): --time-column, else a recognised name."""
+        labels = [f"{name} [{unit}]" if unit else name for name, unit in pairs]
+        if self.time_column is not None:
+            index = match_override([name for name, _ in pairs], self.time_column)
+            found = None if index is None else (index, time_scale_of(labels[index]) or 1.0)
+        else:
+            candidates = [label if i != self._counter_col else "" for i, label in
+                          enumerate(labels)]
+            found = find_time_column(candidates)
+        if found is None:
+            return None, 1.0
+        # with --time-unit the clock converts; otherwise the name's unit (t_ms) does
+        return found[0], (1.0 if self.clock is not None else found[1])
 
     # -- parsing -------------------------------------------------------------
 
@@ -252,6 +274,8 @@ class TextDecoder:
         t_dev = counter = None
         if self._time_col is not None:
             t_dev = np.ascontiguousarray(table[:, self._time_col])
+            if self._time_scale != 1.0:
+                t_dev = t_dev * self._time_scale
             if self.clock is not None:
                 t_dev = self.clock.unwrap(t_dev)
             self._note_device_time(t_dev)

@@ -17,10 +17,6 @@ from dataclasses import dataclass, field
 from typing import BinaryIO
 
 MAX_HEADER_LINE = 1 << 16
-# Time column names other loggers use, and the seconds per unit of each suffix
-# (common practice, no single source).
-_TIME_BASES = ("t", "time", "timestamp", "t_host", "elapsed", "seconds", "millis", "micros")
-_TIME_SCALES = {"": 1.0, "s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6}
 _UNIT_RE = re.compile(r"^\s*(.*?)\s*\[([^\]]*)\]\s*$")
 _TRAILER_RE = re.compile(r"^# rate_hz_measured: (\S+) \((\w+), (\d+) samples\)$")
 
@@ -86,22 +82,6 @@ def split_unit(name: str) -> tuple[str, str]:
     """'load [kg]' or 'load[kg]' -> ('load', 'kg'); no brackets -> (name, '')."""
     match = _UNIT_RE.match(name)
     return (match.group(1), match.group(2).strip()) if match else (name.strip(), "")
-
-
-def time_scale_of(name: str) -> float | None:
-    """Seconds per unit if `name` looks like a time column, else None."""
-    base, unit = split_unit(name)
-    base = base.lower()
-    if unit:
-        return _TIME_SCALES.get(unit.lower()) if base in _TIME_BASES else None
-    if base == "millis":
-        return 1e-3
-    if base == "micros":
-        return 1e-6
-    stem, _, suffix = base.rpartition("_")
-    if stem in _TIME_BASES and suffix in _TIME_SCALES:
-        return _TIME_SCALES[suffix]
-    return 1.0 if base in _TIME_BASES else None
 
 
 def read_header(f: BinaryIO, path: str) -> tuple[RecordingHeader, int]:

@@ -28,15 +28,20 @@ from replay.header import (
     parse_rate_trailer,
     read_header,
     split_unit,
-    time_scale_of,
 )
+from replay.timecolumn import find_time_column, match_override
 
-__all__ = ["Gap", "Recording", "RecordingError", "RecordingHeader", "Segment",
-           "read_recording"]
+__all__ = ["Gap", "NoTimeColumnError", "Recording", "RecordingError", "RecordingHeader",
+           "Segment", "read_recording"]
 
 CHUNK_BYTES = 1 << 20
 MAX_DATA_LINE = 1 << 20       # a longer 'row' is counted bad and skipped
 _SAMPLE_LINES = 50
+
+
+class NoTimeColumnError(RecordingError):
+    """A plain CSV file has no time column and no rate was given; a caller that knows a
+    fallback rate (a chain's rate_hz) opens the file again with it."""
 
 
 @dataclass(frozen=True)
@@ -87,9 +92,11 @@ class Recording:
     """A recording file opened for streaming.
 
     path:        the file (tunetrace recording or plain CSV with a header row).
-    time_column: for plain CSV, the column holding time (else t/time/t_s/timestamp/...).
+    time_column: for plain CSV, the column holding time (else the first whose name the
+                 shared rule of replay.timecolumn recognises: t, time, time_s, t_ms, ...).
     rate_hz:     the sample rate to use (overrides the header; required for plain CSV
-                 without a time column, which then gets t_host = row / rate).
+                 without a time column, which then gets t_host = row / rate; without
+                 it such a file raises NoTimeColumnError).
     chunk_rows:  at most this many rows per Block.
 
     `header`, `schema` are known after construction; `bad_rows`, `torn_last_line`,
@@ -279,25 +286,21 @@ class Recording:
             raise RecordingError(f"{self.path}: no column under the header row holds "
                                  "numbers; give a CSV file with numeric columns.")
         names = [cols[i] for i in numeric]
+        # which column is time: the rule shared by every verb (replay.timecolumn)
         if time_column is not None:
-            if time_column not in cols:
+            if match_override(cols, time_column) is None:
                 raise RecordingError(f"--time-column {time_column!r} is not a column of "
                                      f"{self.path}; its columns are {', '.join(cols)}.")
-            if time_column not in names:
+            if match_override(names, time_column) is None:
                 raise RecordingError(f"--time-column {time_column!r} does not hold "
                                      "numbers; name a column of seconds or give --rate HZ.")
-            h.time_scale = time_scale_of(time_column) or 1.0
-            h.time_column = time_column
-        else:
-            for name in names:
-                scale = time_scale_of(name)
-                if scale is not None:
-                    h.time_column, h.time_scale = name, scale
-                    break
+        found = find_time_column(names, time_column)
+        if found is not None:
+            h.time_column, h.time_scale = names[found[0]], found[1]
         if h.time_column is None and self.rate_override is None:
-            raise RecordingError(f"{self.path} has no time column (t, time, t_s, "
-                                 "timestamp); name one with --time-column NAME or give "
-                                 "the sample rate with --rate HZ.")
+            raise NoTimeColumnError(f"{self.path} has no time column (t, time, t_s, "
+                                    "timestamp, ...); name one with --time-column NAME or "
+                                    "give the sample rate with --rate HZ.")
         h.ignored_columns = tuple(c for i, c in enumerate(cols) if i not in numeric)
         self._usecols = numeric if h.ignored_columns else None
         self._quote = '"'
