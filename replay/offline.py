@@ -19,7 +19,6 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 
 from filters.chainset import ChainSet
-from filters.noise import NoiseMeter, chain_noise_models
 from filters.spec import ChainSpec
 from monitor import __version__
 from replay.csvtext import format_full_precision
@@ -27,7 +26,6 @@ from replay.reader import Gap, Recording, RecordingError
 from replay.writer import MAGIC
 
 _OUT_BUFFER = 1 << 20
-NOISE_CHUNK_S = 10.0          # the measured noise is pooled over chunks of this much sample time
 
 
 @dataclass
@@ -43,9 +41,6 @@ class ApplySummary:
     out_path: str
     bytes_written: int
     seconds: float
-    channels: tuple[str, ...] = ()
-    reduction_db: tuple[float, ...] = ()         # measured per channel (filters.noise)
-    white_reduction_db: tuple[float, ...] = ()   # the chain's exact white-noise reduction
 
 
 def apply_rate(recording: Recording, declared_hz: float | None) -> tuple[float, str]:
@@ -81,8 +76,6 @@ def apply_chain(
     rate, origin = apply_rate(recording, rate_hz)
     channels = recording.schema.channels
     chain = ChainSet(spec, channels, rate)
-    models = chain_noise_models(chain, len(channels))
-    meter = NoiseMeter(models, max(int(NOISE_CHUNK_S * rate), 64))
     out_path = os.fspath(out_path)
     if os.path.exists(out_path) and os.path.samefile(out_path, recording.path):
         raise RecordingError(f"{out_path} is the input recording; write the output to "
@@ -107,7 +100,6 @@ def apply_chain(
             for item in recording.segments(keep_text=True):
                 if isinstance(item, Gap):
                     gaps += 1
-                    meter.break_here()
                     if ours:
                         out.write(f"# gap: {item.reason}\n")
                     continue
@@ -116,10 +108,7 @@ def apply_chain(
                     lines = [line.rsplit(",", drop)[0] for line in lines]
                 elif resplit:
                     lines = _to_commas(lines, header.delimiter)
-                values = item.block.values
-                result = chain.process(values)
-                meter.update(values, result)
-                filtered = format_full_precision(result)
+                filtered = format_full_precision(chain.process(item.block.values))
                 out.write("\n".join([f"{a},{b}" for a, b in zip(lines, filtered, strict=True)]))
                 out.write("\n")
                 rows += len(lines)
@@ -135,11 +124,8 @@ def apply_chain(
     size = os.path.getsize(out_path) if os.path.isfile(out_path) else 0
     if progress is not None:
         progress(1.0)
-    sums = meter.total()
     return ApplySummary(rows, recording.bad_rows, recording.torn_last_line, gaps, rate,
-                        origin, out_path, size, time.monotonic() - began, tuple(channels),
-                        tuple(float(v) for v in sums.reduction_db()),
-                        tuple(m.white_reduction_db for m in models))
+                        origin, out_path, size, time.monotonic() - began)
 
 
 def _output_header(recording: Recording, columns: list[str], rate: float, origin: str,
