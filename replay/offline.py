@@ -17,15 +17,17 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import UTC, datetime
+from typing import TypeVar
 
 from filters.chainset import ChainSet
 from filters.spec import ChainSpec
 from monitor import __version__
 from replay.csvtext import format_full_precision
-from replay.reader import Gap, Recording, RecordingError
+from replay.reader import Gap, NoTimeColumnError, Recording, RecordingError
 from replay.writer import MAGIC
 
 _OUT_BUFFER = 1 << 20
+_T = TypeVar("_T")
 
 
 @dataclass
@@ -43,15 +45,42 @@ class ApplySummary:
     seconds: float
 
 
-def apply_rate(recording: Recording, declared_hz: float | None) -> tuple[float, str]:
-    """The rate the chain runs at, chosen like the pipeline: declared, else the recording's."""
+def apply_rate(recording: Recording, declared_hz: float | None,
+               chain_hz: float | None = None) -> tuple[float, str]:
+    """(Hz, origin) the chain runs at over a file: `declared_hz` (--rate), else the
+    recording's own rate (its header, --rate given to the reader, or estimated from its
+    time column), else `chain_hz` (the chain's rate_hz, "declared"), else RecordingError."""
     if declared_hz is not None:
         return float(declared_hz), "declared"
     rate = recording.rate()
-    if rate is None:
-        raise RecordingError(f"the sample rate of {recording.path} is unknown; "
-                             "give it with --rate HZ.")
-    return rate
+    if rate is not None:
+        return rate
+    if chain_hz is not None:
+        return float(chain_hz), "declared"
+    raise RecordingError(f"the sample rate of {recording.path} is unknown; "
+                         "give it with --rate HZ.")
+
+
+def rate_disagreement(recording: Recording, rate: tuple[float, str],
+                      chain_hz: float | None) -> str | None:
+    """A note when the file's own rate won over a different rate_hz of the chain, else None."""
+    if chain_hz is None or abs(rate[0] - chain_hz) <= 1e-3 * chain_hz:
+        return None
+    return (f"the chain's rate_hz = {chain_hz:g} differs from the {rate[0]:g} Hz "
+            f"({rate[1]}) of {recording.path}; the chain runs at {rate[0]:g} Hz "
+            "(give --rate to choose).")
+
+
+def open_with_fallback(open_file: Callable[[float | None], _T], rate_hz: float | None,
+                       chain_hz: float | None) -> _T:
+    """`open_file(rate_hz)`; for a file without a time column and no --rate, again with the
+    chain's rate_hz (the file then gets t = row / rate_hz). Raises RecordingError."""
+    try:
+        return open_file(rate_hz)
+    except NoTimeColumnError:
+        if rate_hz is not None or chain_hz is None:
+            raise
+    return open_file(chain_hz)
 
 
 def apply_chain(
@@ -66,14 +95,15 @@ def apply_chain(
 ) -> ApplySummary:
     """Filter `recording` with `spec` and write the result to `out_path` (CSV).
 
-    rate_hz:    declared rate (Hz); else the recording's (header, --rate, or estimated).
+    rate_hz:    declared rate (Hz); else the recording's (header, --rate, or estimated),
+                else spec.rate_hz (see apply_rate).
     chain_text: the chain file text, written as `# chain:` lines of a tunetrace output.
     force:      overwrite an existing output (never the input itself).
     progress:   called now and then with the fraction of the input read (0..1).
     Raises ValueError (the chain cannot run at that rate), RecordingError, OSError.
     """
     began = time.monotonic()
-    rate, origin = apply_rate(recording, rate_hz)
+    rate, origin = apply_rate(recording, rate_hz, spec.rate_hz)
     channels = recording.schema.channels
     chain = ChainSet(spec, channels, rate)
     out_path = os.fspath(out_path)

@@ -24,8 +24,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="the CSV to write: every input column, then <channel>_filtered")
     parser.add_argument("--force", action="store_true", help="overwrite OUT.csv if it exists")
     parser.add_argument("--rate", type=positive_float, metavar="HZ",
-                        help="sample rate (else the chain's rate_hz, the recording's, or "
-                             "estimated from the time column)")
+                        help="sample rate (else the recording's own: its header or its time "
+                             "column; else the chain's rate_hz)")
     parser.add_argument("--time-column", metavar="NAME",
                         help="for a CSV file from another logger: the column of seconds")
 
@@ -72,22 +72,28 @@ def _check_output(path: str, force: bool) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from monitor.commands.common import declared_rate, parse_chain_text, read_chain_text
-    from replay.offline import apply_chain
+    from replay.offline import apply_chain, apply_rate, open_with_fallback, rate_disagreement
     from replay.reader import RecordingError, read_recording
     from replay.writer import open_error_sentence
 
     _check_output(args.output, args.force)
     chain_text = read_chain_text(args.chain)
     spec = parse_chain_text(chain_text, args.chain)
-    rate = declared_rate(args, spec, args.chain)
+    declared_rate(args, spec, args.chain)           # refuses --rate against another rate_hz
     try:
-        recording = read_recording(args.file, time_column=args.time_column, rate_hz=args.rate)
+        recording = open_with_fallback(
+            lambda hz: read_recording(args.file, time_column=args.time_column, rate_hz=hz),
+            args.rate, spec.rate_hz)
+        rate = apply_rate(recording, args.rate, spec.rate_hz)
     except RecordingError as exc:
         raise UserError(str(exc)) from None
+    note = rate_disagreement(recording, rate, spec.rate_hz)
+    if note:
+        print(f"tunetrace apply: note: {note}", file=sys.stderr)
     bar = _ProgressBar(sys.stderr) if sys.stderr.isatty() else None
     try:
         result = apply_chain(recording, spec, args.output, chain_text=chain_text,
-                             rate_hz=rate, force=args.force, progress=bar)
+                             rate_hz=args.rate, force=args.force, progress=bar)
     except RecordingError as exc:
         raise UserError(str(exc)) from None
     except OSError as exc:

@@ -44,25 +44,59 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--duration", type=positive_float, metavar="S",
                         help="stop after S seconds")
     parser.add_argument("--rate", type=positive_float, metavar="HZ",
-                        help="sample rate (overrides the recording's; needed for a CSV "
-                             "file without a time column)")
+                        help="sample rate (overrides the recording's; a CSV file without "
+                             "a time column else runs at the chain's rate_hz)")
     parser.add_argument("--time-column", metavar="NAME",
                         help="for a CSV file from another logger: the column of seconds")
 
 
 def run(args: argparse.Namespace) -> int:
-    from monitor.commands.common import build_pipeline
+    import sys
+
+    from monitor.commands.common import (
+        build_pipeline,
+        check_chain_at_rate,
+        declared_rate,
+        parse_chain_text,
+        read_chain_text,
+    )
     from monitor.commands.live import run_session
+    from replay.offline import apply_rate, open_with_fallback, rate_disagreement
     from replay.player import ReplaySource
     from replay.reader import RecordingError
 
+    chain_text = read_chain_text(args.chain) if args.chain else None
+    spec = parse_chain_text(chain_text, args.chain) if chain_text else None
+    declared_rate(args, spec, args.chain)           # refuses --rate against another rate_hz
+    chain_hz = spec.rate_hz if spec is not None else None
     try:
-        source = ReplaySource(args.file, speed=args.speed, loop=args.loop, start_s=args.start,
-                              time_column=args.time_column, rate_hz=args.rate)
+        source = open_with_fallback(
+            lambda hz: ReplaySource(args.file, speed=args.speed, loop=args.loop,
+                                    start_s=args.start, time_column=args.time_column,
+                                    rate_hz=hz),
+            args.rate, chain_hz)
     except RecordingError as exc:
         raise UserError(str(exc)) from None
     try:
-        pipeline = build_pipeline(args, source)
+        rate = None
+        if spec is not None and args.rate is None:
+            try:
+                rate = apply_rate(source.recording, None, chain_hz)
+            except RecordingError:
+                rate = None                 # unknown until the pipeline measures it
+        if rate is not None:
+            check_chain_at_rate(spec, rate[0], args.chain)
+            note = rate_disagreement(source.recording, rate, chain_hz)
+            if note:
+                # the file's own rate wins (as in apply): the pipeline would take the
+                # chain's rate_hz as declared, so it gets the chain without it
+                from dataclasses import replace
+
+                from filters.chainfile import format_chain
+
+                print(f"tunetrace replay: note: {note}", file=sys.stderr)
+                chain_text = format_chain(replace(spec, rate_hz=None))
+        pipeline = build_pipeline(args, source, chain_text=chain_text, chain_name=args.chain)
     except BaseException:
         source.close()
         raise

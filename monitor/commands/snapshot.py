@@ -38,7 +38,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--channel", metavar="NAME",
                         help="channel of the spectrum and response panels (default: the first)")
     parser.add_argument("--rate", type=positive_float, metavar="HZ",
-                        help="sample rate (else the chain's rate_hz or the recording's)")
+                        help="sample rate (else the recording's own, else the chain's rate_hz)")
     parser.add_argument("--time-column", metavar="NAME",
                         help="for a CSV file from another logger: the column of seconds")
     parser.add_argument("-o", "--output", required=True, metavar="PLOT.png", help="PNG to write")
@@ -73,14 +73,18 @@ def _check_output(path: str, force: bool) -> None:
 def _load(args: argparse.Namespace):
     """(recording, spec, rate) for the arguments; UserError on any bad input."""
     from monitor.commands.common import declared_rate, load_chain_file, parse_chain_text
-    from replay.offline import apply_rate
+    from replay.offline import apply_rate, open_with_fallback
     from replay.reader import RecordingError, read_recording
 
     spec = load_chain_file(args.chain) if args.chain else None
-    rate = declared_rate(args, spec, args.chain)
+    declared_rate(args, spec, args.chain)           # refuses --rate against another rate_hz
+    chain_hz = spec.rate_hz if spec is not None else None
     try:
-        recording = read_recording(args.file, time_column=args.time_column, rate_hz=rate)
-        rate_hz, _ = apply_rate(recording, rate)
+        # the rate as apply and replay choose it: --rate, the file's own, the chain's rate_hz
+        recording = open_with_fallback(
+            lambda hz: read_recording(args.file, time_column=args.time_column, rate_hz=hz),
+            args.rate, chain_hz)
+        rate_hz, _ = apply_rate(recording, args.rate, chain_hz)
     except RecordingError as exc:
         raise UserError(str(exc).rstrip(".") + ".") from None
     except FileNotFoundError:
