@@ -63,6 +63,8 @@ def test_group_delay_equals_scipy_group_delay(freq):
 
 
 def test_median_and_gain_count_as_delay_and_flat_gain():
+    # a median of N counts as a pure delay of (N - 1)/2 samples, exp(-j w 3 T) here
+    # (common practice); a gain is flat and scales white-noise variance by scale^2
     med = design("median", window=7)
     h = A.frequency_response(med, np.array([10.0]))
     assert h[0] == pytest.approx(np.exp(-2j * np.pi * 10.0 * 3 / RATE))
@@ -95,7 +97,9 @@ def test_minus3db_at_the_designed_edges():
     # Bessel norm "mag": -3 dB at the cutoff (scipy.signal.bessel docs), kept by prewarping.
     assert A.minus3db_hz(design("bessel", order=6, cutoff_hz=12.0)) == pytest.approx(12.0,
                                                                                      rel=1e-9)
-    # Notch: -3 dB points f0 -+ f0/(2Q) approximately (RBJ cookbook bandwidth relation).
+    # Notch: -3 dB bandwidth f0/Q, points f0 -+ f0/(2Q) approximately (Q = w0/bw as
+    # scipy.signal.iirnotch documents it, after Orfanidis, Introduction to Signal
+    # Processing, 1996).
     lo, hi = A.minus3db_edges_hz(design("notch", freq_hz=50.0, q=10.0))
     assert hi - lo == pytest.approx(5.0, rel=0.01)
 
@@ -108,7 +112,8 @@ def test_phase_lag_of_rc_at_cutoff_is_45_degrees():
 
 
 def test_phase_is_unwrapped_from_dc():
-    # A linear-phase FIR of 9 taps: phase -4 w T at every frequency below its first null.
+    # A linear-phase FIR of 9 taps: phase -4 w T at every frequency below its first null
+    # (a symmetric N-tap FIR delays by (N - 1)/2 samples, common practice).
     d = design("moving-average", window=9)
     assert A.phase_deg(d, 25.0) == pytest.approx(-4 * 360 * 25.0 / RATE, abs=1e-6)
     assert A.group_delay_s(d, 13.0) == pytest.approx(4 / RATE)
@@ -143,9 +148,13 @@ def test_dc_gain_poles_zeros_and_margin():
     # scipy.signal.cheby1: an even order low-pass has DC gain -ripple dB.
     d = design("chebyshev1", order=4, cutoff_hz=10.0, ripple_db=1.0)
     assert 20 * math.log10(A.dc_gain(d)) == pytest.approx(-1.0, abs=1e-9)
+    # EMA y[n] = alpha x[n] + (1 - alpha) y[n-1]: its pole is 1 - alpha, so the margin
+    # 1 - |pole| is alpha (from the recurrence)
     alpha = 0.2
     assert A.stability_margin(design("ema", alpha=alpha)) == pytest.approx(alpha)
     zeros, poles = A.poles_zeros(design("notch", freq_hz=50.0, q=30.0))
+    # a second-order notch has its zeros on the unit circle at +-2 pi f0/fs
+    # (scipy.signal.iirnotch, after Orfanidis, Introduction to Signal Processing, 1996)
     np.testing.assert_allclose(np.abs(zeros), 1.0)
     np.testing.assert_allclose(np.sort(np.abs(np.angle(zeros))), [2 * np.pi * 50 / RATE] * 2)
     zeros, poles = A.poles_zeros(design("rc-lowpass", cutoff_hz=5.0, method="forward-euler"))
@@ -168,6 +177,7 @@ def test_reports_are_json_ready():
     rc = stage_report(chain[2], 8.0)
     assert rc.costs.minus3db_hz == pytest.approx((8.0,), rel=1e-9)
     assert rc.costs.table[2].freq_hz == 8.0
+    # RC at its cutoff: 20 log10(1/sqrt(2)) = -3.0103 dB, any electronics handbook
     assert rc.costs.table[2].mag_db == pytest.approx(-3.0103, abs=1e-4)
     assert rc.costs.table[2].analog_db == pytest.approx(-3.0103, abs=1e-4)
     report = chain_report("load", list(enumerate(chain)), RATE, 8.0)
@@ -179,6 +189,7 @@ def test_reports_are_json_ready():
 
 
 def test_default_analysis_frequency_and_unsettled_response():
+    # an EMA's cutoff 1/(2 pi tau), as RC 1/(2 pi R C), any electronics handbook
     assert A.default_analysis_hz([design("notch", freq_hz=50.0, q=9.0),
                                   design("ema", time_constant_s=0.1)], RATE) == pytest.approx(
         1 / (2 * math.pi * 0.1))

@@ -55,13 +55,16 @@ def test_defaults_are_resolved_into_params():
     assert design("bessel", order=2, cutoff_hz=5.0).params["norm"] == "mag"
     gain = design("gain")
     assert gain.params["scale"] == 1.0 and gain.params["offset"] == 0.0
+    # alpha = 1 - exp(-T/tau): the step-invariant discretization of a first-order lag
+    # (common practice; checked exactly in test_ema_is_the_step_invariant_first_order_lag)
     assert design("ema", time_constant_s=0.1).params["alpha"] == pytest.approx(
         1 - math.exp(-1 / (RATE * 0.1)))
 
 
 def test_backward_euler_worked_check():
     # Common practice worked example: RC low-pass, 5 Hz cutoff, 100 Hz sampling, backward
-    # Euler: y[n] = 0.2391 x[n] + 0.7609 y[n-1] (to 4 places).
+    # Euler: y[n] = 0.2391 x[n] + 0.7609 y[n-1] (to 4 places). The 4-place values are from
+    # memory; they agree with b0 = wT/(1 + wT), -a1 = 1/(1 + wT) for w = 2 pi 5, T = 0.01.
     d = design("rc-lowpass", 100.0, cutoff_hz=5.0, method="backward-euler")
     b0, b1, b2, _, a1, a2 = d.sos[0]
     assert round(b0, 4) == 0.2391 and round(-a1, 4) == 0.7609
@@ -85,7 +88,8 @@ def test_forward_euler_stability_boundary_at_two_rc():
 
 
 def test_forward_euler_second_order_limit_names_largest_stable_t():
-    # |1 + pT| < 1 for p = w0(-1/(2Q) +- j sqrt(1 - 1/(4Q^2))) gives T < 1/(Q w0).
+    # |1 + pT| < 1 for p = w0(-1/(2Q) +- j sqrt(1 - 1/(4Q^2))) gives T < 1/(Q w0)
+    # (derived here from the forward Euler map z = 1 + sT, common practice).
     with pytest.raises(ValueError, match="largest stable sample time is 0.00159155 s"):
         design("second-order-lowpass", cutoff_hz=10.0, q=10.0, method="forward-euler")
 
@@ -108,6 +112,7 @@ def test_ema_is_the_step_invariant_first_order_lag():
     n = np.arange(200)
     y = signal.sosfilt(d.sos, np.ones(n.size))
     np.testing.assert_allclose(y, 1 - np.exp(-(n + 1) / RATE / tau), atol=1e-14)
+    # cutoff of a first-order lag 1/(2 pi tau), as RC 1/(2 pi R C), any electronics handbook
     assert d.derived["cutoff_hz"] == pytest.approx(1 / (2 * math.pi * tau))
     assert design("ema", alpha=d.derived["alpha"]).derived["time_constant_s"] == pytest.approx(tau)
     assert design("ema", alpha=1.0).derived["time_constant_s"] == 0.0
@@ -128,12 +133,16 @@ def test_dc_block_recurrence_and_pole():
 def test_moving_average_and_median():
     ma = design("moving-average", window=10)
     np.testing.assert_array_equal(ma.fir, np.full(10, 0.1))
+    # an N-point moving average has its first null at fs/N (common practice): 250/10 Hz
     assert ma.derived["first_null_hz"] == pytest.approx(25.0)
+    # a median of N samples lags by (N - 1)/2 samples (common practice)
     med = design("median", window=7)
     assert med.delay_samples == 3.0 and med.derived["delay_s"] == pytest.approx(3 / RATE)
 
 
 def test_prewarp_hz_and_bands():
+    # prewarping at prewarp_hz: digital equals analog there (definition, common practice),
+    # both sides evaluated by scipy.signal.sosfreqz and scipy.signal.freqs_zpk
     d = design("butterworth", order=3, cutoff_hz=30.0, prewarp_hz=10.0)
     _, h = signal.sosfreqz(d.sos, worN=[10.0], fs=RATE)
     z, p, k = d.analog_zpk
@@ -143,6 +152,7 @@ def test_prewarp_hz_and_bands():
     assert any("prewarp_hz" in w for w in ignored.warnings)
     bs = design("chebyshev1", band="bandstop", order=3, low_hz=45.0, high_hz=55.0, ripple_db=1.0)
     assert bs.sos.shape == (3, 6)
+    # centre of a band design: geometric mean of its edges (scipy.signal.lp2bs: w0 = sqrt(w1 w2))
     assert bs.derived["centre_hz"] == pytest.approx(math.sqrt(45.0 * 55.0))
 
 
@@ -215,6 +225,7 @@ def test_warning_when_sample_time_too_long_for_the_prototype():
     d = design("rc-lowpass", cutoff_hz=60.0, method="matched")
     (warning,) = [w for w in d.warnings if "too long" in w]
     _, h = signal.sosfreqz(d.sos, worN=[60.0], fs=RATE)
+    # the analog RC is -3 dB (1/sqrt(2)) at its cutoff, any electronics handbook
     diff = 20 * math.log10(abs(h[0])) - 20 * math.log10(1 / math.sqrt(2))
     assert diff < -1.0 and f"{diff:+.1f} dB at 60 Hz" in warning
     assert not any("too long" in w for w in design("rc-lowpass", cutoff_hz=60.0).warnings)

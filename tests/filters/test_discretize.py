@@ -91,7 +91,8 @@ def test_tustin_prewarp_equals_scipy_digital_designs(family, band, order):
 
 
 def test_tustin_prewarp_at_a_given_frequency_matches_analog_there():
-    # Definition of prewarping: the digital response equals the analog one at prewarp_hz.
+    # Definition of prewarping: the digital response equals the analog one at prewarp_hz
+    # (Tustin with the frequency pre-warped by tan; common practice).
     proto = P.band_design("butterworth", "lowpass", 4, (30.0,))
     for f in (10.0, 30.0, 80.0):
         d = discretize(proto, T, "tustin-prewarp", prewarp_hz=f)
@@ -139,7 +140,8 @@ def analog_step(proto: P.AnalogPrototype, t: np.ndarray) -> np.ndarray:
 @pytest.mark.parametrize("band,edges", [("lowpass", (10.0,)), ("bandpass", (8.0, 30.0))])
 def test_zoh_order_10_is_step_invariant(band, edges):
     # Definition of ZOH (step invariance): the digital step response equals the analog
-    # step response at the sample instants; the poles are exp(pT).
+    # step response at the sample instants; the poles are exp(pT) (common practice; the
+    # analog step response from partial fractions, residues of H(s)/s).
     proto = P.band_design("butterworth", band, 10, edges)
     d = discretize(proto, T, "zoh")
     np.testing.assert_allclose(np.sort_complex(d.poles), np.sort_complex(np.exp(proto.p * T)),

@@ -123,10 +123,13 @@ def test_bessel_norms_and_chebyshev_ripple_at_cutoff():
 def test_prototype_for_reads_stage_parameters():
     proto = P.prototype_for("rc-highpass", {"r_ohm": 1e3, "c_farad": 1e-4})
     assert proto.band == "highpass"
+    # RC cutoff 1/(2 pi R C), any electronics handbook (R C = 0.1 s here)
     assert proto.derived["cutoff_hz"] == pytest.approx(1 / (2 * math.pi * 0.1))
     proto = P.prototype_for("chebyshev1", {"band": "bandstop", "order": 2, "low_hz": 40.0,
                                            "high_hz": 60.0, "ripple_db": 1.0})
     assert proto.edges_hz == (40.0, 60.0) and proto.order == 4
+    # centre of a band design: the geometric mean sqrt(f_low f_high) of its edges, as the
+    # lowpass-to-bandstop transform places it (scipy.signal.lp2bs: w0 = sqrt(w1 w2))
     assert proto.derived["centre_hz"] == pytest.approx(math.sqrt(2400.0))
     with pytest.raises(ValueError, match="kind"):
         P.prototype_for("median", {})
@@ -135,4 +138,5 @@ def test_prototype_for_reads_stage_parameters():
 def test_at_edges_redesigns_at_new_frequencies():
     proto = P.rc("lowpass", r_ohm=1e3, c_farad=1e-5).at_edges((20.0,))
     assert proto.edges_hz == (20.0,)
+    # RC low-pass: |H| = 1/sqrt(2) (-3 dB) at its cutoff, any electronics handbook
     assert mag(proto, 20.0) == pytest.approx(1 / math.sqrt(2), rel=1e-14)
