@@ -59,7 +59,11 @@ def test_text_output(chain, capsys):
     lines = out.splitlines()
     assert all(len(line) <= 80 for line in lines[1:]), [ln for ln in lines if len(ln) > 80]
     assert "rate 250 Hz (from --rate)\nlag figures at each first cutoff, else 1 Hz" in out
+    # median of 5: a delay of (5 - 1)/2 = 2 samples = 8 ms at 250 Hz (common practice)
     assert "  at 1 Hz: group delay 8 ms, phase lag 2.9 deg (8 ms)" in out  # median: 2 samples
+    # RC at its cutoff lags 45 deg, i.e. 45/360/8 s = 15.6 ms of phase delay, any
+    # electronics handbook (the 10 ms group delay is checked against
+    # scipy.signal.group_delay in tests/monitor/tui/test_lag_readout.py)
     assert "  at 8 Hz: group delay 10 ms, phase lag 45.0 deg (15.6 ms)" in out  # RC at cutoff
     assert "stage 1: median (all channels)" in out
     assert "stage 2: notch (channels load)" in out
@@ -67,6 +71,8 @@ def test_text_output(chain, capsys):
     notch = design_stage(StageSpec("notch", {"freq_hz": 50.0, "q": 30.0}), 250.0)
     row = ", ".join(f"{v:.12g}" for v in notch.sos[0, :3])
     assert f"section 1  b = [{row}]" in out
+    # notch -3 dB bandwidth f0/Q = 50/30 Hz around 50 Hz (scipy.signal.iirnotch: Q = w0/bw,
+    # after Orfanidis, Introduction to Signal Processing, 1996): 49.17 and 50.84 Hz
     assert "-3 dB at 49.17, 50.84 Hz" in out
     assert "analog dB" in out  # the rc-lowpass table compares with its prototype
     assert "channel load: 1 median, 2 notch, 3 rc-lowpass" in out
