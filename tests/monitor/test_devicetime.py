@@ -50,7 +50,8 @@ def test_jitter_is_measured_and_drops_do_not_count_as_jitter():
     clock.unwrap(jittered[keep])
     timing = clock.timing()
     assert timing.rate_hz == pytest.approx(250.0, rel=1e-3)
-    # difference of two independent 20 us errors: sqrt(2) * 20 us
+    # difference of two independent 20 us errors: sqrt(2) * 20 us (variances of
+    # independent errors add, common practice)
     assert timing.jitter_s == pytest.approx(np.sqrt(2) * 20e-6, rel=0.1)
 
 
