@@ -172,5 +172,6 @@ def test_stats_a_step_in_the_window_is_not_noise():
     ring.write(np.arange(n) / 250.0, raw, filtered)
     (load,) = ring_stats(ring, n)
     assert load.noise_raw == pytest.approx(0.1, rel=0.1)
+    # 0.1 kg against 0.01 kg of noise: 20 log10(0.1 / 0.01) = 20 dB (RMS ratio in dB)
     assert load.reduction_db == pytest.approx(20.0, abs=1.5)
     assert load.mean_raw == pytest.approx(float(raw.mean()))
