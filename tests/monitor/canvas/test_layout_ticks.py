@@ -10,6 +10,7 @@ from monitor.canvas.ticks import format_hz, format_linear, linear_ticks, log_tic
 
 
 def test_nice_steps_are_one_two_five_times_a_power_of_ten():
+    # axis steps of 1, 2 or 5 times a power of ten (common practice for plot axes)
     assert nice_step(10.0, 5) == 2.0
     assert nice_step(0.7, 6) == 0.2
     assert nice_step(600.0, 8) == 100.0
