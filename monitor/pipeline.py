@@ -412,9 +412,7 @@ class Pipeline:
             return
         target = getattr(self._sink, method, None)
         if target is None:                  # an optional sink method (write_rate_change)
-            target = _inner_method(self._sink, method)
-            if target is None:
-                return
+            return
         try:
             target(*args)
         except Exception as exc:  # OSError above all: a full disk must not stop the stream
@@ -457,18 +455,6 @@ class Pipeline:
         with self._lock:
             work.commands_dropped = self._commands_dropped
             self._published = dataclasses.replace(work)
-
-
-def _inner_method(sink: Any, method: str) -> Any:
-    """`method` of the recorder inside a wrapping sink (commands.common.DeferredRecording
-    keeps it as `_writer`, commands.record's wrapper as `inner`), or None."""
-    for name in ("inner", "_writer"):
-        inner = getattr(sink, name, None)
-        if inner is not None:
-            found = getattr(inner, method, None) or _inner_method(inner, method)
-            if found is not None:
-                return found
-    return None
 
 
 def _sink_name(sink: Any) -> str | None:

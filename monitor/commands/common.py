@@ -268,6 +268,9 @@ class DeferredRecording:
     def write_gap(self, reason: str) -> None:
         self._forward("write_gap", (reason,), 0)
 
+    def write_rate_change(self, rate_hz: float, origin: str, previous_hz: float) -> None:
+        self._forward("write_rate_change", (rate_hz, origin, previous_hz), 0)
+
     def close(self) -> None:
         if self._writer is None and self._held and self.pipeline.schema is not None:
             self._open()

@@ -66,6 +66,9 @@ class _WatchedSink:
     def write_gap(self, reason: str) -> None:
         self._call(self.inner.write_gap, reason)
 
+    def write_rate_change(self, rate_hz: float, origin: str, previous_hz: float) -> None:
+        self._call(self.inner.write_rate_change, rate_hz, origin, previous_hz)
+
     def close(self) -> None:
         self._call(self.inner.close)
 
