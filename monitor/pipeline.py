@@ -184,8 +184,10 @@ class Pipeline:
         self.chain_spec = chain_spec
         self.ring_capacity = ring_capacity
         self.ring: Ring | None = None
-        self._declared = rate_hz if rate_hz is not None else (
-            chain_spec.rate_hz if chain_spec is not None else None)
+        chain_hz = chain_spec.rate_hz if chain_spec is not None else None
+        if rate_hz is None and chain_hz is not None and _file_rate(source) is not None:
+            chain_hz = None         # a recording's own rate beats the chain's rate_hz (as apply)
+        self._declared = rate_hz if rate_hz is not None else chain_hz
         self._chain: ChainSet | None = None
         self._chain_ready = False           # built for a known rate (or replaced by the user)
         self._design_rate: float | None = None   # the rate the running chain was built for
@@ -455,6 +457,13 @@ class Pipeline:
         with self._lock:
             work.commands_dropped = self._commands_dropped
             self._published = dataclasses.replace(work)
+
+
+def _file_rate(source: Any) -> float | None:
+    """The rate a replayed recording gives of itself (its header, trailer or time column),
+    known before the first block; None for live sources."""
+    hint = source.rate_hint() if hasattr(source, "rate_hint") else None
+    return float(hint[0]) if hint is not None and hint[1] in ("recording", "estimated") else None
 
 
 def _sink_name(sink: Any) -> str | None:

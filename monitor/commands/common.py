@@ -210,7 +210,9 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
                                  time_column=getattr(args, "time_column", None),
                                  counter_column=getattr(args, "counter_column", None),
                                  declared_rate=rate, **text_time_options(args))
-    pipeline = Pipeline(source, chain_spec=spec, rate_hz=rate, ring_capacity=capacity)
+    # the chain's rate_hz is the pipeline's own fallback (a replayed file's rate beats it)
+    pipeline = Pipeline(source, chain_spec=spec, rate_hz=getattr(args, "rate", None),
+                        ring_capacity=capacity)
     if record:
         pipeline.submit(start_recording(pipeline, record, chain_text, force=force))
     return pipeline

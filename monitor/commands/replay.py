@@ -87,15 +87,8 @@ def run(args: argparse.Namespace) -> int:
         if rate is not None:
             check_chain_at_rate(spec, rate[0], args.chain)
             note = rate_disagreement(source.recording, rate, chain_hz)
-            if note:
-                # the file's own rate wins (as in apply): the pipeline would take the
-                # chain's rate_hz as declared, so it gets the chain without it
-                from dataclasses import replace
-
-                from filters.chainfile import format_chain
-
+            if note:                        # the file's own rate wins (as in apply)
                 print(f"tunetrace replay: note: {note}", file=sys.stderr)
-                chain_text = format_chain(replace(spec, rate_hz=None))
         pipeline = build_pipeline(args, source, chain_text=chain_text, chain_name=args.chain)
     except BaseException:
         source.close()

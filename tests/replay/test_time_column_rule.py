@@ -175,6 +175,13 @@ def test_time_column_override_for_files(tmp_path):
     assert " rows at 500 Hz (estimated)" in result.stdout
     # the chain's rate_hz = 100 is overruled by the file's own rate, and apply says so
     assert "rate_hz = 100 differs from the 500 Hz" in result.stderr
+    # replay runs the chain at the file's rate too, and keeps the chain as written
+    result = subprocess.run(tunetrace_cmd("replay", str(src), "--chain", str(chain),
+                                          "--time-column", "stamp", "--plain", "--speed", "max"),
+                            capture_output=True, text=True, timeout=60)
+    assert result.returncode == 0, result.stderr
+    assert "rate_hz = 100 differs from the 500 Hz" in result.stderr
+    assert "500 Hz" in result.stdout.strip().splitlines()[-1]
 
 
 def test_apply_and_replay_fall_back_to_the_chains_rate(tmp_path):
