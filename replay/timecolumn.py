@@ -12,8 +12,9 @@ Pure: imports nothing from monitor, so monitor, replay and the commands can shar
 
 from __future__ import annotations
 
-import re
 from collections.abc import Sequence
+
+from replay.header import split_unit
 
 # Time column names of boards and other loggers, and the seconds per unit of each
 # suffix (common practice, no single source).
@@ -21,7 +22,6 @@ TIME_NAMES = ("t", "time", "timestamp", "t_host", "t_dev", "elapsed", "seconds",
               "millis", "micros")
 UNIT_SECONDS = {"": 1.0, "s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6}
 _NAME_UNITS = {"millis": 1e-3, "micros": 1e-6}
-_BRACKETS = re.compile(r"^\s*(.*?)\s*\[([^\]]*)\]\s*$")
 
 
 def time_scale_of(name: str) -> float | None:
@@ -29,8 +29,7 @@ def time_scale_of(name: str) -> float | None:
 
     'time_s' -> 1.0, 'T_MS' -> 0.001, 'time [us]' -> 1e-6, 'millis' -> 0.001, 'load' -> None.
     """
-    match = _BRACKETS.match(name)
-    base, unit = (match.group(1), match.group(2).strip()) if match else (name.strip(), "")
+    base, unit = split_unit(name)
     base = base.lower()
     if unit:
         return UNIT_SECONDS.get(unit.lower()) if base in TIME_NAMES else None
