@@ -193,6 +193,7 @@ class Pipeline:
         self._design_rate: float | None = None   # the rate the running chain was built for
         self._refused_rate: float | None = None  # a moved rate the chain could not run at
         self._sink = sink
+        self.noise: Any = None              # a monitor.stats.SessionNoise, set before start()
         self._commands: queue.Queue = queue.Queue(maxsize=COMMAND_QUEUE_SIZE)
         self._stop = threading.Event()
         self._thread: threading.Thread | None = None
@@ -272,6 +273,8 @@ class Pipeline:
                     self._work.gaps += 1
                     self._work.last_gap = reason
                     self._to_sink("write_gap", reason)
+                    if self.noise is not None:
+                        self.noise.gap()
                 if block is not None and len(block):
                     self._handle(block)
                 self._publish()
@@ -300,6 +303,8 @@ class Pipeline:
         if not self._work.paused or self._source_pauses():
             self.ring.write(block.t_host, values, filtered)
         self._to_sink("write_block", block, filtered)
+        if self.noise is not None and self._work.chain_note is None:
+            self.noise.feed(self._chain, values, filtered)
         self._work.frames += len(block)
 
     def _channels(self, width: int) -> tuple[str, ...]:

@@ -1,32 +1,47 @@
 """Per-channel statistics of the newest samples: level, noise and noise reduction.
 
-Noise here is the RMS of the deviation from the mean (the AC RMS), so a load
-sitting at 12 kg with 0.4 kg of ripple has noise 0.4, and the noise reduction
-of a chain is 20 log10(noise_raw / noise_filtered) dB. A window longer than
-SEGMENTS * MIN_SEGMENT samples is cut into SEGMENTS equal sub-windows and the
-noise is the median of their AC RMS values: a step inside the window (a parcel
-landing) then disturbs one or two sub-windows and does not count as noise.
-Content slower than a sub-window is treated as signal.
+Noise is measured by filters.noise: steps (a parcel landing) and ramps are the
+signal, the rest is noise, and the filtered signal's noise is not counted
+until the chain has settled after a step. The noise reduction of a chain is
+20 log10(noise_raw / noise_filtered) dB, measured; beside it stands the
+chain's exact white-noise reduction (Parseval), which depends on the chain
+only. Windows are counted in samples, so the figures do not depend on the
+playback speed or on how the stream was cut into blocks.
+
+SessionNoise pools the measured figure over a whole session (the reader
+thread feeds it every block); channel_stats measures one window of the ring.
 """
 
 from __future__ import annotations
 
 import math
-import warnings
+import threading
+from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
+from filters.noise import (
+    ChannelNoiseModel,
+    NoiseMeter,
+    NoiseSums,
+    chain_noise_models,
+    measure,
+    reduction_db,
+)
 from monitor.ring import Ring, RingSnapshot
 
-ROUNDING = 1e-12              # relative size below which a deviation is float rounding
-SEGMENTS = 10                 # sub-windows of a long window (the median resists steps)
-MIN_SEGMENT = 16              # samples in a sub-window at the least
+SESSION_CHUNK_S = 10.0        # the session meter measures this much at a time (sample time)
 
 
 @dataclass(frozen=True)
 class ChannelStats:
-    """One channel over one window. Means and noise in the channel's unit; reduction in dB."""
+    """One channel over one window. Means and noise in the channel's unit; reductions in dB.
+
+    reduction_db: measured, 20 log10(noise_raw / noise_filtered).
+    white_reduction_db: the chain's exact reduction of white noise, -10 log10(sum h^2).
+    """
 
     mean_raw: float
     mean_filtered: float
@@ -34,51 +49,71 @@ class ChannelStats:
     noise_filtered: float
     reduction_db: float
     samples: int
+    white_reduction_db: float = 0.0
 
 
 def noise_reduction_db(noise_raw: float, noise_filtered: float) -> float:
     """20 log10(raw / filtered); inf when the filter removes all noise, 0 when there is none."""
-    if noise_filtered > 0:
-        return 20.0 * math.log10(noise_raw / noise_filtered) if noise_raw > 0 else -math.inf
-    return math.inf if noise_raw > 0 else 0.0
+    return reduction_db(noise_raw, noise_filtered)
 
 
-def channel_stats(snapshot: RingSnapshot) -> list[ChannelStats]:
-    """Statistics of every channel of `snapshot` (NaN samples ignored); [] when it is empty."""
+_model_cache: dict[str, Any] = {"chain": None, "models": []}
+_model_lock = threading.Lock()
+
+
+def chain_models(chain: Any, width: int) -> list[ChannelNoiseModel]:
+    """filters.noise.chain_noise_models, cached for the last chain seen (the table asks
+    twice a second)."""
+    with _model_lock:
+        if _model_cache["chain"] is chain and len(_model_cache["models"]) == width:
+            return _model_cache["models"]
+    models = chain_noise_models(chain, width)
+    with _model_lock:
+        _model_cache.update(chain=chain, models=models)
+    return models
+
+
+def channel_stats(snapshot: RingSnapshot, chain: Any = None) -> list[ChannelStats]:
+    """Statistics of every channel of `snapshot` (NaN samples ignored); [] when it is empty.
+
+    chain: the ChainSet that made snapshot.filtered (its noise models guard steps and
+    give the white-noise figure); None treats filtered as unrelated white-noise data.
+    """
     if len(snapshot) == 0:
         return []
+    width = snapshot.raw.shape[1]
+    models = chain_models(chain, width)
+    fresh = snapshot.total - len(snapshot) < max(m.guard for m in models)
+    sums = measure(snapshot.raw, snapshot.filtered, models, fresh=fresh)
+    return _assemble(snapshot.raw, snapshot.filtered, sums, models)
+
+
+def ring_stats(ring: Ring, samples: int, chain: Any = None) -> list[ChannelStats]:
+    """channel_stats over the newest `samples` of `ring`."""
+    return channel_stats(ring.latest(samples), chain)
+
+
+def _assemble(raw: np.ndarray, filtered: np.ndarray, sums: NoiseSums,
+              models: Sequence[ChannelNoiseModel]) -> list[ChannelStats]:
+    means_raw, means_filtered = _nanmean(raw), _nanmean(filtered)
+    noise_raw, noise_filtered = sums.noise_raw(), sums.noise_filtered()
+    counts = np.sum(~np.isnan(raw), axis=0)
     out = []
-    means_raw, means_filtered = _nanmean(snapshot.raw), _nanmean(snapshot.filtered)
-    noise_raw = _noise(snapshot.raw)
-    noise_filtered = _noise(snapshot.filtered)
-    counts = np.sum(~np.isnan(snapshot.raw), axis=0)
-    for k in range(snapshot.raw.shape[1]):
+    for k in range(raw.shape[1]):
+        nr, nf = _tidy(noise_raw[k], means_raw[k]), _tidy(noise_filtered[k], means_filtered[k])
         out.append(ChannelStats(
             mean_raw=float(means_raw[k]), mean_filtered=float(means_filtered[k]),
-            noise_raw=float(noise_raw[k]), noise_filtered=float(noise_filtered[k]),
-            reduction_db=noise_reduction_db(float(noise_raw[k]), float(noise_filtered[k])),
-            samples=int(counts[k]),
+            noise_raw=nr, noise_filtered=nf, reduction_db=reduction_db(nr, nf),
+            samples=int(counts[k]), white_reduction_db=models[k].white_reduction_db,
         ))
     return out
 
 
-def ring_stats(ring: Ring, samples: int) -> list[ChannelStats]:
-    """channel_stats over the newest `samples` of `ring`."""
-    return channel_stats(ring.latest(samples))
-
-
-def _noise(values: np.ndarray) -> np.ndarray:
-    """(n, k) -> (k,): AC RMS of the window, or the median over SEGMENTS sub-windows."""
-    n = values.shape[0]
-    if n < SEGMENTS * MIN_SEGMENT:
-        return _ac_rms(values, _nanmean(values))
-    size = n // SEGMENTS
-    newest = values[n - size * SEGMENTS:]
-    per_segment = np.array([_ac_rms(part, _nanmean(part))
-                            for part in np.split(newest, SEGMENTS)])   # (SEGMENTS, k)
-    with warnings.catch_warnings():      # a channel with no finite sample: NaN, quietly
-        warnings.simplefilter("ignore", RuntimeWarning)
-        return np.nanmedian(per_segment, axis=0)
+def _tidy(noise: float, mean: float) -> float:
+    """A constant channel's residuals are rounding of its level, not noise."""
+    if math.isfinite(noise) and noise <= 1e-12 * max(1.0, abs(mean)):
+        return 0.0
+    return float(noise)
 
 
 def _nanmean(values: np.ndarray) -> np.ndarray:
@@ -88,12 +123,62 @@ def _nanmean(values: np.ndarray) -> np.ndarray:
     return np.divide(sums, counts, out=np.full(values.shape[1], np.nan), where=counts > 0)
 
 
-def _ac_rms(values: np.ndarray, means: np.ndarray) -> np.ndarray:
-    deviation = values - means
-    finite = ~np.isnan(deviation)
-    counts = finite.sum(axis=0)
-    squares = np.where(finite, deviation * deviation, 0.0).sum(axis=0)
-    rms = np.sqrt(np.divide(squares, counts, out=np.full(values.shape[1], np.nan),
-                            where=counts > 0))
-    # A constant channel's deviations are rounding of the mean, not noise.
-    return np.where(rms <= ROUNDING * np.maximum(1.0, np.abs(means)), 0.0, rms)
+@dataclass(frozen=True)
+class SessionFigures:
+    """Measured noise figures pooled over the session so far, per channel (dB, unit).
+
+    samples: samples measured with the current chain (the figure restarts when the chain
+    is replaced or redesigned).
+    """
+
+    reduction_db: tuple[float, ...]
+    white_reduction_db: tuple[float, ...]
+    noise_raw: tuple[float, ...]
+    noise_filtered: tuple[float, ...]
+    samples: int
+
+
+class SessionNoise:
+    """The session's measured noise reduction, fed by the reader thread, read by any thread.
+
+    feed() every block that went through a running chain; gap() where samples were lost.
+    A new chain object (replaced, redesigned, fallen back to raw) starts a new figure.
+    """
+
+    def __init__(self) -> None:
+        self._lock = threading.Lock()
+        self._chain: Any = None
+        self._meter: NoiseMeter | None = None
+        self._samples = 0
+
+    def feed(self, chain: Any, raw: np.ndarray, filtered: np.ndarray) -> None:
+        """Add one block. raw, filtered: (n, channels) float64."""
+        with self._lock:
+            if chain is not self._chain or self._meter is None:
+                models = chain_models(chain, raw.shape[1])
+                rate = float(getattr(chain, "rate_hz", 0.0) or 1.0)
+                chunk = max(int(SESSION_CHUNK_S * rate), 64)
+                self._chain, self._meter, self._samples = chain, NoiseMeter(models, chunk), 0
+            self._meter.update(raw, filtered)
+            self._samples += len(raw)
+
+    def gap(self) -> None:
+        """Samples were lost here: no piece spans the gap, the chain's restart is guarded."""
+        with self._lock:
+            if self._meter is not None:
+                self._meter.break_here()
+
+    def figures(self) -> SessionFigures | None:
+        """The pooled figures including samples not yet measured; None before any sample."""
+        with self._lock:
+            if self._meter is None:
+                return None
+            meter = self._meter
+            sums = meter.total()
+            return SessionFigures(
+                reduction_db=tuple(float(v) for v in sums.reduction_db()),
+                white_reduction_db=tuple(m.white_reduction_db for m in meter.models),
+                noise_raw=tuple(float(v) for v in sums.noise_raw()),
+                noise_filtered=tuple(float(v) for v in sums.noise_filtered()),
+                samples=self._samples,
+            )

@@ -20,6 +20,7 @@ from datetime import UTC, datetime
 from typing import TypeVar
 
 from filters.chainset import ChainSet
+from filters.noise import NoiseMeter, chain_noise_models
 from filters.spec import ChainSpec
 from monitor import __version__
 from replay.csvtext import format_full_precision
@@ -28,6 +29,7 @@ from replay.writer import MAGIC
 
 _OUT_BUFFER = 1 << 20
 _T = TypeVar("_T")
+NOISE_CHUNK_S = 10.0          # the measured noise is pooled over chunks of this much sample time
 
 
 @dataclass
@@ -43,6 +45,9 @@ class ApplySummary:
     out_path: str
     bytes_written: int
     seconds: float
+    channels: tuple[str, ...] = ()
+    reduction_db: tuple[float, ...] = ()         # measured per channel (filters.noise)
+    white_reduction_db: tuple[float, ...] = ()   # the chain's exact white-noise reduction
 
 
 def apply_rate(recording: Recording, declared_hz: float | None,
@@ -106,6 +111,8 @@ def apply_chain(
     rate, origin = apply_rate(recording, rate_hz, spec.rate_hz)
     channels = recording.schema.channels
     chain = ChainSet(spec, channels, rate)
+    models = chain_noise_models(chain, len(channels))
+    meter = NoiseMeter(models, max(int(NOISE_CHUNK_S * rate), 64))
     out_path = os.fspath(out_path)
     if os.path.exists(out_path) and os.path.samefile(out_path, recording.path):
         raise RecordingError(f"{out_path} is the input recording; write the output to "
@@ -130,6 +137,7 @@ def apply_chain(
             for item in recording.segments(keep_text=True):
                 if isinstance(item, Gap):
                     gaps += 1
+                    meter.break_here()
                     if ours:
                         out.write(f"# gap: {item.reason}\n")
                     continue
@@ -138,7 +146,10 @@ def apply_chain(
                     lines = [line.rsplit(",", drop)[0] for line in lines]
                 elif resplit:
                     lines = _to_commas(lines, header.delimiter)
-                filtered = format_full_precision(chain.process(item.block.values))
+                values = item.block.values
+                result = chain.process(values)
+                meter.update(values, result)
+                filtered = format_full_precision(result)
                 out.write("\n".join([f"{a},{b}" for a, b in zip(lines, filtered, strict=True)]))
                 out.write("\n")
                 rows += len(lines)
@@ -154,8 +165,11 @@ def apply_chain(
     size = os.path.getsize(out_path) if os.path.isfile(out_path) else 0
     if progress is not None:
         progress(1.0)
+    sums = meter.total()
     return ApplySummary(rows, recording.bad_rows, recording.torn_last_line, gaps, rate,
-                        origin, out_path, size, time.monotonic() - began)
+                        origin, out_path, size, time.monotonic() - began, tuple(channels),
+                        tuple(float(v) for v in sums.reduction_db()),
+                        tuple(m.white_reduction_db for m in models))
 
 
 def _output_header(recording: Recording, columns: list[str], rate: float, origin: str,

@@ -113,4 +113,12 @@ def run(args: argparse.Namespace) -> int:
     print(f"wrote {result.out_path}: {result.rows} rows at {result.rate_hz:g} Hz "
           f"({result.rate_origin}), {result.gaps} gaps, {result.bytes_written} bytes, "
           f"{result.seconds:.1f} s" + (f"; {', '.join(notes)}" if notes else ""))
+    if result.reduction_db:
+        print("noise reduction, measured on this recording / of white noise: " + ", ".join(
+            f"{name} {_db(db)}/{white:.1f} dB" for name, db, white in
+            zip(result.channels, result.reduction_db, result.white_reduction_db, strict=True)))
     return 0
+
+
+def _db(value: float) -> str:
+    return "-" if value != value else f"{value:.1f}"            # NaN: nothing to measure

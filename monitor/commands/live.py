@@ -12,6 +12,7 @@ from monitor.commands.common import add_source_options, build_pipeline
 from monitor.errors import UserError
 
 STATS_INTERVAL_S = 1.0
+STATS_WINDOW_S = 10.0          # a stats line's noise covers this much sample time at most
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -48,11 +49,13 @@ def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
     out, err = out or sys.stdout, err or sys.stderr
     plus_minus = "±" if _can_print(out, "±") else "+/-"
     previous = _interrupt_on_sigterm()
+    from monitor.stats import SessionNoise
+
+    pipeline.noise = SessionNoise()
     pipeline.start()
     started = time.monotonic()
     next_line, shown_total = started + STATS_INTERVAL_S, 0
     reported: set[str] = set()
-    reductions: list[list[float]] = []          # per stats line, per channel (dB)
     try:
         while True:
             now = time.monotonic()
@@ -65,8 +68,6 @@ def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
                 stats = _newest_stats(pipeline, total - shown_total)
                 print(stats_line(now - started, status, pipeline, stats, plus_minus),
                       file=out, flush=True)
-                if stats and status.chain_note is None:      # the chain was running
-                    reductions.append([s.reduction_db for s in stats])
                 shown_total = total
                 next_line += STATS_INTERVAL_S * max(1, int((now - next_line) // STATS_INTERVAL_S))
             wake = next_line if duration is None else min(next_line, started + duration)
@@ -79,7 +80,7 @@ def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
             signal.signal(signal.SIGTERM, previous)
     status = pipeline.status()
     _report_problems(status, reported, err)
-    print(summary_line(time.monotonic() - started, status, pipeline, reductions),
+    print(summary_line(time.monotonic() - started, status, pipeline, pipeline.noise.figures()),
           file=out, flush=True)
     if status.error:
         raise UserError(f"the stream stopped on an internal error ({status.error}); "
@@ -153,13 +154,17 @@ def _channel_labels(pipeline: Any, count: int) -> list[str]:
     return labels
 
 
-def _newest_stats(pipeline: Any, samples: int) -> list[Any]:
+def _newest_stats(pipeline: Any, new_samples: int) -> list[Any]:
+    """Stats of the last STATS_WINDOW_S of samples (sample time, so any replay speed gives
+    the same figures), or [] when no sample arrived since the last line."""
     from monitor.stats import ring_stats
 
     ring = pipeline.ring
-    if ring is None or samples <= 0:
+    if ring is None or new_samples <= 0:
         return []
-    return ring_stats(ring, samples)
+    rate = pipeline.rate()
+    window = int(STATS_WINDOW_S * rate[0]) if rate else new_samples
+    return ring_stats(ring, max(1, min(window, ring.capacity)), pipeline.chain)
 
 
 def stats_line(elapsed: float, status: Any, pipeline: Any, stats: list[Any],
@@ -173,30 +178,32 @@ def stats_line(elapsed: float, status: Any, pipeline: Any, stats: list[Any],
         return head + "  (no new samples)"
     parts = [
         f"{label} raw {s.mean_raw:.4g}{plus_minus}{s.noise_raw:.3g} "
-        f"filt {s.mean_filtered:.4g}{plus_minus}{s.noise_filtered:.3g}"
+        f"filt {s.mean_filtered:.4g}{plus_minus}{s.noise_filtered:.3g} "
+        f"nr {_db(s.reduction_db)}"
         for label, s in zip(_channel_labels(pipeline, len(stats)), stats, strict=True)
     ]
     return head + "  | " + "  | ".join(parts)
 
 
-def summary_line(elapsed: float, status: Any, pipeline: Any,
-                 reductions: list[list[float]]) -> str:
-    """The closing line: totals, and each channel's median noise reduction over the lines.
+def _db(value: float) -> str:
+    return "-" if value != value else f"{value:.1f} dB"        # NaN: nothing measured yet
 
-    The median over one-second windows keeps a parcel step in one window from
-    dragging the figure down (a step counts as "noise" in its window).
+
+def summary_line(elapsed: float, status: Any, pipeline: Any, figures: Any) -> str:
+    """The closing line: totals, and each channel's noise reduction over the session.
+
+    figures: monitor.stats.SessionFigures (None when no sample went through the chain):
+    the measured reduction pooled over every sample of the current chain, beside the
+    chain's exact white-noise reduction.
     """
-    import numpy as np
-
     per_s = status.frames / elapsed if elapsed > 0 else 0.0
     text = (f"summary: {elapsed:.1f} s  {status.frames} frames ({per_s:.1f}/s)  bad "
             f"{status.bad}  dropped {status.dropped}  gaps {status.gaps}  {rate_text(status)}")
-    widths = {len(row) for row in reductions}
-    if len(widths) == 1:
-        medians = np.median(np.array(reductions), axis=0)
-        labels = _channel_labels(pipeline, len(medians))
-        text += "  median noise reduction " + ", ".join(
-            f"{label} {db:.1f} dB" for label, db in zip(labels, medians, strict=True))
+    if figures is not None and figures.samples:
+        labels = _channel_labels(pipeline, len(figures.reduction_db))
+        text += "  noise reduction measured/white " + ", ".join(
+            f"{label} {_db(db).removesuffix(' dB')}/{white:.1f} dB" for label, db, white
+            in zip(labels, figures.reduction_db, figures.white_reduction_db, strict=True))
     if status.last_bad_reason:
         text += f"  (last bad frame: {status.last_bad_reason})"
     return text
