@@ -100,12 +100,14 @@ class ChannelNoiseModel:
                    -10.0 * math.log10(energy))
 
 
-def chain_noise_models(chain: Any, width: int) -> list[ChannelNoiseModel]:
+def chain_noise_models(chain: Any, width: int, rate_hz: float = 1.0
+                       ) -> list[ChannelNoiseModel]:
     """The noise model of each of the first `width` channels of a ChainSet (bypassed stages
-    left out); identity models past its channels, or for None or a chain without a rate."""
+    left out); identity models past its channels, or for None or a chain without a rate
+    (their pieces sized for `rate_hz`, the sample rate in Hz when the chain has none)."""
     rate = float(getattr(chain, "rate_hz", 0.0) or 0.0)
     if chain is None or rate <= 0:
-        return [ChannelNoiseModel.identity(max(rate, 1.0))] * width
+        return [ChannelNoiseModel.identity(max(float(rate_hz), 1.0))] * width
     stages = chain.spec.stages
     models = []
     for name in list(chain.channels)[:width]:
@@ -194,11 +196,24 @@ def measure(raw: np.ndarray, filtered: np.ndarray, models: Sequence[ChannelNoise
         raw_ok, filtered_ok = _usable(r, f, model.guard, context)
         if fresh:
             filtered_ok[:model.guard] = False
-        ssr, dof = _pieces_sum(r, raw_ok, model.piece, None)
-        sums.ssr_raw[c], sums.dof_raw[c] = ssr, dof
-        ssr, dof = _pieces_sum(f, filtered_ok, model.piece, model.rho)
-        sums.ssr_filtered[c], sums.dof_filtered[c] = ssr, dof
+        sums.ssr_raw[c], sums.dof_raw[c] = _pieces_sum(r, raw_ok, model.piece, None)
+        sums.ssr_filtered[c], sums.dof_filtered[c] = _pieces_sum(f, filtered_ok, model.piece,
+                                                                 model.rho)
+        if sums.dof_raw[c] == 0 and sums.dof_filtered[c] == 0:
+            # Too few samples for any straight-line piece (a window just opened): the
+            # deviation from the mean over what there is, in both signals alike.
+            sums.ssr_raw[c], sums.dof_raw[c] = _about_mean(r, context)
+            sums.ssr_filtered[c], sums.dof_filtered[c] = _about_mean(f, context)
     return sums
+
+
+def _about_mean(x: np.ndarray, context: int) -> tuple[float, float]:
+    """Sum of squares about the mean of the finite samples after `context`, and their count."""
+    x = x[context:]
+    x = x[np.isfinite(x)]
+    if x.size == 0:
+        return 0.0, 0.0
+    return float(np.sum((x - x.mean()) ** 2)), float(x.size)
 
 
 def _usable(raw: np.ndarray, filtered: np.ndarray, guard: int, context: int

@@ -128,6 +128,8 @@ class PipelineStatus:
     jitter_s: spread of the device clock's sample intervals (s), when the stream has one.
     rate_moved_from / rate_moved_at: the rate (Hz) the chain was designed at before the
     newest redesign for a moved rate, and when (monotonic s); rate_redesigns counts them.
+    chain_since: ring sample index (see RingSnapshot.total) from which the running chain
+    filtered, fresh or reset: figures of the filtered signal start there.
     """
 
     source_state: str = "connecting"
@@ -158,6 +160,7 @@ class PipelineStatus:
     rate_moved_from: float | None = None
     rate_moved_at: float | None = None
     rate_redesigns: int = 0
+    chain_since: int = 0
 
 
 # -- the pipeline ----------------------------------------------------------------
@@ -189,6 +192,7 @@ class Pipeline:
             chain_hz = None         # a recording's own rate beats the chain's rate_hz (as apply)
         self._declared = rate_hz if rate_hz is not None else chain_hz
         self._chain: ChainSet | None = None
+        self._chain_seen: ChainSet | None = None  # the chain chain_since was taken for
         self._chain_ready = False           # built for a known rate (or replaced by the user)
         self._design_rate: float | None = None   # the rate the running chain was built for
         self._refused_rate: float | None = None  # a moved rate the chain could not run at
@@ -300,6 +304,8 @@ class Pipeline:
             self._work.chain_error = f"the chain failed ({exc}); showing raw until it is replaced"
             self._chain = ChainSet.identity(self._channels(values.shape[1]))
             filtered = self._chain.process(values)
+        if self._chain is not self._chain_seen:
+            self._chain_seen, self._work.chain_since = self._chain, self.ring.total
         if not self._work.paused or self._source_pauses():
             self.ring.write(block.t_host, values, filtered)
         self._to_sink("write_block", block, filtered)
@@ -388,6 +394,7 @@ class Pipeline:
         elif isinstance(command, ResetChain):
             if self._chain is not None:
                 self._chain.reset()
+                self._chain_seen = None     # restarted from rest: figures start again
         elif isinstance(command, Pause | Resume):
             paused = isinstance(command, Pause)
             if self._source_pauses():

@@ -61,36 +61,55 @@ _model_cache: dict[str, Any] = {"chain": None, "models": []}
 _model_lock = threading.Lock()
 
 
-def chain_models(chain: Any, width: int) -> list[ChannelNoiseModel]:
+def chain_models(chain: Any, width: int, rate_hz: float = 1.0) -> list[ChannelNoiseModel]:
     """filters.noise.chain_noise_models, cached for the last chain seen (the table asks
-    twice a second)."""
+    twice a second). rate_hz sizes the pieces when the chain has no rate of its own."""
+    key = (chain, width, None if getattr(chain, "rate_hz", None) else round(rate_hz, 3))
     with _model_lock:
-        if _model_cache["chain"] is chain and len(_model_cache["models"]) == width:
+        if _model_cache["chain"] == key:
             return _model_cache["models"]
-    models = chain_noise_models(chain, width)
+    models = chain_noise_models(chain, width, rate_hz)
     with _model_lock:
-        _model_cache.update(chain=chain, models=models)
+        _model_cache.update(chain=key, models=models)
     return models
 
 
-def channel_stats(snapshot: RingSnapshot, chain: Any = None) -> list[ChannelStats]:
+def channel_stats(snapshot: RingSnapshot, chain: Any = None, since: int = 0
+                  ) -> list[ChannelStats]:
     """Statistics of every channel of `snapshot` (NaN samples ignored); [] when it is empty.
 
     chain: the ChainSet that made snapshot.filtered (its noise models guard steps and
-    give the white-noise figure); None treats filtered as unrelated white-noise data.
+    give the white-noise figure); None treats filtered as unrelated white-noise data,
+    its sample rate taken from the snapshot's host times. since: ring sample index from
+    which `chain` filtered (PipelineStatus.chain_since); older rows are left out, and the
+    chain's start there is guarded like a step.
     """
+    first = snapshot.total - len(snapshot)
+    if since > first:
+        keep = slice(min(since - first, len(snapshot)), None)
+        snapshot = RingSnapshot(snapshot.t_host[keep], snapshot.raw[keep],
+                                snapshot.filtered[keep], snapshot.total)
+        first = snapshot.total - len(snapshot)
     if len(snapshot) == 0:
         return []
     width = snapshot.raw.shape[1]
-    models = chain_models(chain, width)
-    fresh = snapshot.total - len(snapshot) < max(m.guard for m in models)
+    models = chain_models(chain, width, _span_rate(snapshot.t_host))
+    fresh = first - since < max(m.guard for m in models)
     sums = measure(snapshot.raw, snapshot.filtered, models, fresh=fresh)
     return _assemble(snapshot.raw, snapshot.filtered, sums, models)
 
 
-def ring_stats(ring: Ring, samples: int, chain: Any = None) -> list[ChannelStats]:
+def ring_stats(ring: Ring, samples: int, chain: Any = None, since: int = 0
+               ) -> list[ChannelStats]:
     """channel_stats over the newest `samples` of `ring`."""
-    return channel_stats(ring.latest(samples), chain)
+    return channel_stats(ring.latest(samples), chain, since)
+
+
+def _span_rate(t: np.ndarray) -> float:
+    """Samples per second over the whole span of host times (bursts average out); 1.0
+    when the span is empty."""
+    span = float(t[-1] - t[0]) if len(t) > 1 else 0.0
+    return (len(t) - 1) / span if span > 0 and math.isfinite(span) else 1.0
 
 
 def _assemble(raw: np.ndarray, filtered: np.ndarray, sums: NoiseSums,

@@ -164,7 +164,8 @@ def _newest_stats(pipeline: Any, new_samples: int) -> list[Any]:
         return []
     rate = pipeline.rate()
     window = int(STATS_WINDOW_S * rate[0]) if rate else new_samples
-    return ring_stats(ring, max(1, min(window, ring.capacity)), pipeline.chain)
+    return ring_stats(ring, max(1, min(window, ring.capacity)), pipeline.chain,
+                      pipeline.status().chain_since)
 
 
 def stats_line(elapsed: float, status: Any, pipeline: Any, stats: list[Any],

@@ -158,7 +158,7 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
         from monitor.stats import channel_stats
 
         snapshot = ring.latest(self._window_samples(min(self.ui.window_s, STATS_MAX_S)))
-        stats = channel_stats(snapshot)
+        stats = channel_stats(snapshot, self.pipeline.chain, status.chain_since)
         schema = self.pipeline.schema
         rows = []
         for k, name in enumerate(self.session.channels):
@@ -170,6 +170,7 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
                 rms_raw=s.noise_raw if s else math.nan,
                 rms_filtered=s.noise_filtered if s else math.nan,
                 reduction_db=s.reduction_db if s else math.nan,
+                white_db=s.white_reduction_db if s else math.nan,
                 lag_ms=self.session.lag_ms(name, self.ui.analysis_hz),
                 rate_hz=status.rate_hz or math.nan,
             ))

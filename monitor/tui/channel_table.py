@@ -11,7 +11,7 @@ from textual.widgets import DataTable
 COLUMNS: tuple[tuple[str, str, int], ...] = (
     ("channel", "channel", 12), ("unit", "unit", 5), ("last", "last", 11), ("mean", "mean", 11),
     ("rms_raw", "RMS raw", 10), ("rms_filtered", "RMS filt", 10), ("reduction_db", "NR dB", 7),
-    ("lag_ms", "lag ms", 8), ("rate_hz", "rate Hz", 8),
+    ("white_db", "white dB", 8), ("lag_ms", "lag ms", 8), ("rate_hz", "rate Hz", 8),
 )
 
 
@@ -19,8 +19,11 @@ COLUMNS: tuple[tuple[str, str, int], ...] = (
 class ChannelRow:
     """What the table shows for one channel (NaN: not known yet).
 
-    rms_raw / rms_filtered: RMS of the signal's variation (the mean removed), in the unit.
-    reduction_db: 20 log10(rms_raw / rms_filtered).
+    rms_raw / rms_filtered: RMS noise in the unit: what is left once the signal's steps
+    and ramps are taken out, and for the filtered signal once the chain settled after a step
+    (monitor.stats, filters.noise).
+    reduction_db: measured, 20 log10(rms_raw / rms_filtered).
+    white_db: the chain's exact reduction of white noise, -10 log10(sum h^2).
     lag_ms: group delay of the channel's chain at the analysis frequency.
     """
 
@@ -31,6 +34,7 @@ class ChannelRow:
     rms_raw: float = math.nan
     rms_filtered: float = math.nan
     reduction_db: float = math.nan
+    white_db: float = math.nan
     lag_ms: float = math.nan
     rate_hz: float = math.nan
 
@@ -48,10 +52,14 @@ def row_cells(row: ChannelRow) -> tuple[str, ...]:
     return (
         row.name, row.unit or "-", _number(row.last), _number(row.mean),
         _number(row.rms_raw, 4), _number(row.rms_filtered, 4),
-        ("-" if math.isnan(row.reduction_db) else f"{row.reduction_db:.1f}"),  # inf: all removed
+        _db(row.reduction_db), _db(row.white_db),
         "-" if not math.isfinite(row.lag_ms) else f"{row.lag_ms:.1f}",
         _number(row.rate_hz, 4),
     )
+
+
+def _db(value: float) -> str:
+    return "-" if math.isnan(value) else f"{value:.1f}"       # inf: all removed
 
 
 class ChannelTable(DataTable):

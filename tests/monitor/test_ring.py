@@ -140,8 +140,9 @@ def test_stats_noise_reduction_of_a_moving_average_on_white_noise():
     filtered = chain.process(raw)
     ring = Ring(1, 300_000)
     ring.write(np.arange(320_000.0), raw, filtered)
-    (stats,) = ring_stats(ring, 300_000)
+    (stats,) = ring_stats(ring, 300_000, chain)
     assert stats.reduction_db == pytest.approx(10 * np.log10(16), abs=0.1)
+    assert stats.white_reduction_db == pytest.approx(10 * np.log10(16), abs=1e-9)
     assert stats.mean_filtered == pytest.approx(5.0, abs=0.05)
 
 

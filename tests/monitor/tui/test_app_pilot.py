@@ -440,3 +440,45 @@ def test_shared_scope_edits_every_channel_of_a_shared_stage(start_pipeline):
             await pilot.press("q")
 
     run(scenario())
+
+
+def test_noise_figures_after_lowering_a_cutoff_while_parcels_land(start_pipeline):
+    # The demo case that once drove "NR dB" negative: the load's low-pass lowered while
+    # parcels land. The measured figure must stay a reduction (the filter's slow step
+    # response is not noise), and only samples of the new chain count.
+    pipeline = start_pipeline(parse_chain(CHAIN))
+    # white dB of notch + RC 2 Hz, by Parseval with h from scipy.signal (iirnotch as
+    # the notch stage is checked against in tests/filters; butter(1) = RC under
+    # tustin-prewarp, as above); the median stage is counted as its linear part, 1.
+    sos = np.vstack([signal.tf2sos(*signal.iirnotch(50.0, 30.0, fs=RATE)),
+                     signal.butter(1, 2.0, fs=RATE, output="sos")])
+    impulse = np.zeros(int(30 * RATE))
+    impulse[0] = 1.0
+    white = -10 * np.log10(np.sum(signal.sosfilt(sos, impulse) ** 2))
+
+    async def scenario():
+        app = make_app(pipeline)
+        async with app.run_test(size=SIZE) as pilot:
+            table = app.query_one("#channels")
+
+            def cell(column: str) -> str:
+                return str(table.get_cell("load", column))
+
+            await highlight_stage(pilot, app, 2)                  # rc-lowpass of load
+            before = pipeline.status().samples_total
+            await type_into(pilot, app, "#field-cutoff_hz", "2")
+            await pilot.press("enter")
+            assert await until(pilot, lambda: pipeline.status().chain_since >= before)
+            assert await until(pilot, lambda: cell("white_db") == f"{white:.1f}")
+            readings = []
+            for _ in range(12):                                    # 6 s of 2 Hz refreshes
+                await pilot.pause(0.5)
+                if cell("reduction_db") != "-":
+                    readings.append(float(cell("reduction_db")))
+            assert len(readings) >= 6 and min(readings) > 3.0, readings
+            await leave_field(pilot, app)
+            await pilot.press("q")
+            assert await until(pilot, lambda: app.return_value is not None)
+        return app.return_value
+
+    assert run(scenario()) == 0
