@@ -37,11 +37,22 @@ CHAINS = {
         '[[stage]]\nkind = "rc-lowpass"\ncutoff_hz = 5.0\nmethod = "tustin-prewarp"\n',
         lambda n: signal.lfilter(*signal.butter(1, 5.0, fs=RATE_HZ), _impulse(n)),
     ),
+    "rc 5 Hz backward Euler": (
+        # s -> (1 - z^-1) / T in 1 / (1 + s RC): y[n] = a y[n-1] + (1 - a) x[n] with
+        # a = RC / (RC + T), RC = 1 / (2 pi fc) (backward difference; any DSP text).
+        '[[stage]]\nkind = "rc-lowpass"\ncutoff_hz = 5.0\nmethod = "backward-euler"\n',
+        lambda n: signal.lfilter([1 - _be_pole(5.0)], [1.0, -_be_pole(5.0)], _impulse(n)),
+    ),
     "moving average 25": (
         '[[stage]]\nkind = "moving-average"\nwindow = 25\n',
         lambda n: signal.lfilter(np.ones(25) / 25, [1.0], _impulse(n)),
     ),
 }
+
+
+def _be_pole(cutoff_hz: float) -> float:
+    rc = 1.0 / (2 * np.pi * cutoff_hz)
+    return rc / (rc + 1.0 / RATE_HZ)
 
 
 def _impulse(n: int) -> np.ndarray:

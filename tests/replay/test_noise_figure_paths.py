@@ -39,13 +39,13 @@ def figures(text: str, label: str) -> tuple[float, float]:
 
 def test_replay_speeds_and_apply_give_one_noise_figure(tmp_path):
     src, chain = tmp_path / "parcels.csv", tmp_path / "chain.toml"
-    write_recording(src, stepped_load(40.0), chain_text=None)
+    write_recording(src, stepped_load(16.0), chain_text=None)
     chain.write_text(CHAIN)
     seen = {}
-    for speed in ("8", "max"):
+    for speed in ("1", "4", "max"):
         result = subprocess.run(tunetrace_cmd("replay", str(src), "--speed", speed, "--plain",
                                               "--chain", str(chain)),
-                                capture_output=True, text=True, timeout=120)
+                                capture_output=True, text=True, timeout=180)
         assert result.returncode == 0, result.stderr
         seen[speed] = figures(result.stdout.strip().splitlines()[-1], "load[kg]")
     result = subprocess.run(tunetrace_cmd("apply", str(src), "--chain", str(chain), "-o",
@@ -59,4 +59,4 @@ def test_replay_speeds_and_apply_give_one_noise_figure(tmp_path):
         signal.butter(4, 2.0, fs=RATE_HZ, output="sos"), np.r_[1.0, np.zeros(15_000)]) ** 2))
     for m, white in seen.values():
         assert white == pytest.approx(parseval, abs=0.05)
-        assert m == pytest.approx(parseval, abs=1.0)           # white noise, steps left out
+        assert m == pytest.approx(parseval, abs=1.5)     # 16 s of white noise, steps left out
