@@ -34,6 +34,15 @@ from monitor.ring import Ring, RingSnapshot
 
 SESSION_CHUNK_S = 10.0        # the session meter measures this much at a time (sample time)
 
+MEASURED_HELP = ("measured noise reduction: raw noise over filtered noise on this data, in "
+                 "dB; a parcel's step and a slow ramp are signal, not noise, and the "
+                 "filtered signal counts only once the chain has settled after a step")
+WHITE_HELP = ("white-noise reduction: what the chain takes off white noise, exactly, "
+              "-10 log10(sum h^2) dB (h its impulse response); it depends on the chain only")
+FIGURES_HELP = (f"Noise figures, measured/white: the {MEASURED_HELP}; the {WHITE_HELP}. "
+                "Well above white: the noise has hum a low-pass removes; well below: "
+                "the noise is slow.")
+
 
 @dataclass(frozen=True)
 class ChannelStats:

@@ -16,7 +16,9 @@ CAUTION = ("Filtering adds lag and can hide faults: before filtered values feed 
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.epilog = CAUTION
+    from monitor.stats import FIGURES_HELP
+
+    parser.epilog = f"{FIGURES_HELP} {CAUTION}"
     parser.add_argument("file", metavar="FILE",
                         help="a tunetrace recording, or a CSV file with a header row")
     parser.add_argument("--chain", required=True, metavar="CHAIN", help="chain file (TOML)")
@@ -114,9 +116,12 @@ def run(args: argparse.Namespace) -> int:
           f"({result.rate_origin}), {result.gaps} gaps, {result.bytes_written} bytes, "
           f"{result.seconds:.1f} s" + (f"; {', '.join(notes)}" if notes else ""))
     if result.reduction_db:
+        units = recording.schema.units
+        labels = [f"{n}[{units[k]}]" if k < len(units) and units[k] else n
+                  for k, n in enumerate(result.channels)]
         print("noise reduction, measured on this recording / of white noise: " + ", ".join(
-            f"{name} {_db(db)}/{white:.1f} dB" for name, db, white in
-            zip(result.channels, result.reduction_db, result.white_reduction_db, strict=True)))
+            f"{label} {_db(db)}/{white:.1f} dB" for label, db, white in
+            zip(labels, result.reduction_db, result.white_reduction_db, strict=True)))
     return 0
 
 

@@ -58,6 +58,9 @@ channels = ["vib"]
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from monitor.stats import FIGURES_HELP
+
+    parser.epilog = FIGURES_HELP
     parser.add_argument("--plain", action="store_true",
                         help="no UI: print one stats line per second on stdout")
     parser.add_argument("--duration", type=positive_float, metavar="S",

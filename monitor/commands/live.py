@@ -16,6 +16,9 @@ STATS_WINDOW_S = 10.0          # a stats line's noise covers this much sample ti
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from monitor.stats import FIGURES_HELP
+
+    parser.epilog = FIGURES_HELP
     parser.add_argument("source", metavar="SOURCE",
                         help="device path (/dev/ttyACM0, COM3), pyserial URL (socket://host:port, "
                              "rfc2217://..., loop://), - for stdin, or sim://")

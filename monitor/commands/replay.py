@@ -31,6 +31,9 @@ def seconds_value(text: str) -> float:
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from monitor.stats import FIGURES_HELP
+
+    parser.epilog = FIGURES_HELP
     parser.add_argument("file", metavar="FILE",
                         help="a tunetrace recording, or a CSV file with a header row")
     parser.add_argument("--speed", type=speed_value, default=1.0, metavar="X|max",

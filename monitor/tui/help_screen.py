@@ -5,6 +5,7 @@ from __future__ import annotations
 from rich.table import Table
 from rich.text import Text
 
+from monitor.stats import MEASURED_HELP, WHITE_HELP
 from monitor.tui.dialogs import ShowText
 from monitor.tui.keys import ACTIONS, CHANNEL_KEYS, KEY_LABELS
 
@@ -35,6 +36,12 @@ def help_table() -> Table:
     table.add_row("tab", "Next panel or field; shift+tab goes back.")
     table.add_row("enter", "In a parameter field: apply the change to the running chain.")
     table.add_row("ctrl+p", "Command palette: every action above by name.")
+    table.add_row("", "")
+    table.add_row("", Text("Figures in the channel table", style="bold underline"))
+    table.add_row("NR dB", MEASURED_HELP[0].upper() + MEASURED_HELP[1:]
+                  + "; counted from the last change of chain.")
+    table.add_row("white dB", WHITE_HELP[0].upper() + WHITE_HELP[1:] + ".")
+    table.add_row("lag ms", "Group delay of the chain at the lag frequency (g).")
     table.add_row("", "")
     table.add_row("", Text(CAUTION, style="italic #e0c060"))
     return table

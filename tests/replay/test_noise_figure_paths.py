@@ -52,7 +52,7 @@ def test_replay_speeds_and_apply_give_one_noise_figure(tmp_path):
                                           str(tmp_path / "out.csv")),
                             capture_output=True, text=True, timeout=120)
     assert result.returncode == 0, result.stderr
-    seen["apply"] = figures(result.stdout, "load")
+    seen["apply"] = figures(result.stdout, "load[kg]")
     measured = [m for m, _ in seen.values()]
     assert max(measured) - min(measured) <= 0.1, seen        # one decimal shown: 0.1 apart
     parseval = -10 * np.log10(np.sum(signal.sosfilt(

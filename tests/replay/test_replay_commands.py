@@ -253,6 +253,11 @@ def test_help_of_the_verbs(capsys):
         with pytest.raises(SystemExit):
             main([verb, "--help"])
         assert option in capsys.readouterr().out
+    for verb in ("live", "demo", "replay", "apply"):            # what each noise figure means
+        with pytest.raises(SystemExit):
+            main([verb, "--help"])
+        text = " ".join(capsys.readouterr().out.split())
+        assert "measured noise reduction" in text and "-10 log10(sum h^2)" in text, verb
 
 
 def test_apply_running_out_of_space_removes_the_half_written_output(tmp_path):

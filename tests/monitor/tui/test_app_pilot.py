@@ -296,6 +296,10 @@ def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline
             console_text = _plain(app, app.screen.body)
             for action in ACTIONS:
                 assert action.help in console_text, action.action
+            flat = " ".join(console_text.split())
+            for column in ("NR dB", "white dB", "lag ms"):        # the table's figures explained
+                assert column in flat
+            assert "-10 log10(sum h^2)" in flat and "settled after a step" in flat
             await pilot.press("escape")
             assert await until(pilot, lambda: not isinstance(app.screen, HelpScreen))
             from monitor.tui.palette import SessionCommands
