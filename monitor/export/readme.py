@@ -15,6 +15,18 @@ CAUTION = (
 )
 
 
+# gcc's flags per Cortex-M core, as the README prints them (the ARM tests build with these
+# and run the self-test on qemu's model of each core): (core, flags, what its FPU does)
+CORTEX_M: tuple[tuple[str, str, str], ...] = (
+    ("Cortex-M4F", "-mcpu=cortex-m4 -mthumb -mfloat-abi=hard -mfpu=fpv4-sp-d16",
+     "single-precision FPU with fused multiply-add, double in software"),
+    ("Cortex-M7", "-mcpu=cortex-m7 -mthumb -mfloat-abi=hard -mfpu=fpv5-d16",
+     "double-precision FPU with fused multiply-add"),
+    ("Cortex-M0", "-mcpu=cortex-m0 -mthumb", "no FPU, float and double in software"),
+)
+CORTEX_M_COMMON = "-std=c99 -O2 -ffp-contract=off"
+
+
 def _lag(designs: tuple, rate_hz: float) -> str:
     """'; lag ...' : the chain's group delay where tunetrace design quotes it."""
     if not designs:
@@ -39,7 +51,9 @@ def _api(plan: ExportPlan) -> list[str]:
         f"void        {p}_<ch>_reset({p}_<ch>_chain *c); /* restart at the next sample */",
         f"{p}_sample {p}_<ch>_step({p}_<ch>_chain *c, {p}_sample x); /* one sample */",
         "```", "",
-        "No heap, no libm, no library calls: the state lives in the struct you provide "
+        "No heap, no libm, no library calls (beyond the compiler's arithmetic helpers on "
+        "a core that lacks an instruction, see the Cortex-M build below): the state lives "
+        "in the struct you provide "
         "(a zero-initialised static struct is ready to use). A chain starts at its first "
         "sample: each stage with start `steady` begins as if its first input had held "
         "forever (no start-up ramp from zero); a stage with start `zero` begins from rest. "
@@ -175,6 +189,36 @@ def _build(plan: ExportPlan, report: QuantizationReport) -> list[str]:
     lines += ["", "The self-test reads one row of comma-separated inputs per line on stdin "
               "and prints one row of outputs per line; a bad row stops it with the line "
               "number on stderr.", ""]
+    return lines + _cortex_m(plan)
+
+
+def _cortex_m(plan: ExportPlan) -> list[str]:
+    """The Cortex-M build: flags per core, why -ffp-contract=off, runtime helpers."""
+    p = plan.prefix
+    lines = ["### On a Cortex-M part", "", "```sh"]
+    for core, flags, fpu in CORTEX_M:
+        lines += [f"# {core}: {fpu}",
+                  f"arm-none-eabi-gcc {CORTEX_M_COMMON} {flags} -c {p}.c"]
+    lines += ["```", ""]
+    if plan.fixed:
+        lines.append("Fixed point is bit-exact on every core. On the M0, integer division "
+                     "and Q31's 64-bit products are libgcc calls (`__aeabi_idiv`, "
+                     "`__aeabi_lmul`, `__aeabi_ldivmod`); on the M3, M4 and M7 they are "
+                     "instructions (a moving average divides by its constant window).")
+    else:
+        lines.append("Keep `-ffp-contract=off` in every C dialect. The M4F and M7 FPUs fuse "
+                     "a*b + c into one rounding (vfma), and gcc's GNU dialects (its default, "
+                     "and many IDE projects') fuse wherever they can: the rounding is then "
+                     "no longer the one tunetrace modelled, and the error moves by many "
+                     "rounding steps of the peak (twenty, for some Butterworth low-passes), "
+                     "enough to fail the check for a chain near the limit. With the flag "
+                     "every core computes the host's output bit for bit. Without an FPU "
+                     "(and for double on the M4F) the arithmetic is libgcc's software "
+                     "floating point (`__aeabi_f*`, `__aeabi_d*`).")
+    lines += ["", f"To check the port on the part, link `{p}_selftest.c` and `{p}.c` with "
+              "the board's startup code and newlib's semihosting (`--specs=rdimon.specs`): "
+              "the self-test then reads the vectors and prints through the debug probe; "
+              "compare its output as above.", ""]
     return lines
 
 

@@ -38,11 +38,16 @@ class Built:
 
     def run(self, rows: np.ndarray) -> np.ndarray:
         """rows: (n, channels) floats or ints -> the self-test's (n, channels) output."""
+        return self.run_command([str(self.selftest)], rows)
+
+    def run_command(self, command: list[str], rows: np.ndarray) -> np.ndarray:
+        """Like run, with the self-test started by `command` (another build of it, or an
+        emulator running one)."""
         rows = np.asarray(rows)
         fmt = "%d" if self.plan.fixed else "%.17g"
         text = "\n".join(",".join(fmt % v for v in row) for row in rows) + "\n"
-        done = subprocess.run([str(self.selftest)], input=text, capture_output=True,
-                              text=True, check=True, timeout=60)
+        done = subprocess.run(command, input=text, capture_output=True, text=True,
+                              check=True, timeout=60)
         dtype = np.int64 if self.plan.fixed else np.float64
         return np.loadtxt(done.stdout.splitlines(), delimiter=",", dtype=dtype, ndmin=2)
 
@@ -113,3 +118,19 @@ def gcc() -> str:
 def valgrind() -> str:
     """Path of valgrind (skipped outside CI when absent)."""
     return need("valgrind")
+
+
+@pytest.fixture(scope="module")
+def arm_tools() -> dict[str, str]:
+    """Paths of arm-none-eabi-gcc (with newlib's semihosting specs), arm-none-eabi-objdump
+    and qemu-system-arm, by name (skipped outside CI when absent)."""
+    tools = {name: need(name) for name in ("arm-none-eabi-gcc", "arm-none-eabi-objdump",
+                                           "qemu-system-arm")}
+    # gcc prints the bare name back when no multilib has the file: newlib is missing
+    specs = subprocess.run([tools["arm-none-eabi-gcc"], "-print-file-name=rdimon.specs"],
+                           capture_output=True, text=True, timeout=30).stdout.strip()
+    if not os.path.isabs(specs):
+        if os.environ.get("CI"):
+            pytest.fail("libnewlib-arm-none-eabi (rdimon.specs) is required under CI")
+        pytest.skip("libnewlib-arm-none-eabi is not installed")
+    return tools
