@@ -51,9 +51,12 @@ _MAX_IMPULSE = 1 << 17
 # peak) and of the DC gain; the export's README check compares the compiled code with the
 # same number.
 FLOAT_TOLERANCE: dict[str, float] = {"c-float": 1e-5, "c-double": 1e-12}
-# Room kept below the tolerance for a compiler whose rounding differs from the model by a
-# few steps (in units of the sample type's machine epsilon, relative to the peak).
-FLOAT_MARGIN_EPS = 8
+# Room kept below the tolerance for a compiler whose rounding differs from the model (in
+# units of the sample type's machine epsilon, relative to the peak). gcc's default
+# -ffp-contract=fast on a Cortex-M4F/M7 fuses multiply-adds, which moved the error by up
+# to 20 steps over a scan of 5,000 low-passes (tests/monitor/export/test_export_arm.py);
+# 32 keeps "holds" true for such a build too, not only for the README's flags.
+FLOAT_MARGIN_EPS = 32
 STRUCTURE_NAMES = {"tdf2": "transposed direct form II",
                    "delta": "delta form (offsets from z = 1, compensated states)",
                    "df1": "direct form I"}

@@ -249,9 +249,10 @@ def test_double_export_passes_its_readme_check_on_cortex_m(export_build, arm_bui
         assert fused > 0
 
 
-# Plain transposed direct form II chains that float32 just holds: the report's figure is
-# within 1.2e-6 of the 1e-5 tolerance (a margin of 8 float32 steps of the peak is kept for
-# the compiler). gcc's fused multiply-adds move it by about 20 steps: the check fails.
+# Plain transposed direct form II chains near what float32 holds: the report's figure is
+# within 1.3e-6 of the 1e-5 tolerance. gcc's fused multiply-adds move it by about 20
+# float32 steps of the peak and the check fails, so the report keeps a margin of
+# FLOAT_MARGIN_EPS = 32 steps and does not call these held (once it kept 8 and did).
 NEAR_LIMIT = {
     "butter5-10.4Hz-1000Hz": (butterworth(5, 10.4), 1000.0),
     "butter6-23.2Hz-1000Hz": (butterworth(6, 23.2), 1000.0),
@@ -262,9 +263,14 @@ NEAR_LIMIT = {
 def test_fused_multiply_add_fails_near_the_limit_and_the_readme_flag_prevents_it(
         export_build, arm_build, on_board, name):
     chain, rate = NEAR_LIMIT[name]
-    built = export_build(chain, "c-float", rate=rate, seconds=VECTORS_SECONDS)
-    assert built.report.ok and built.plan.channels[0].structure == "tdf2"
-    assert max(c.figures.vector_error for c in built.report.channels) > 8.5e-6
+    # left to itself the export takes the delta form for these (tested in the sweep below)
+    auto = export_build(chain, "c-float", rate=rate, seconds=VECTORS_SECONDS)
+    assert auto.report.ok and auto.plan.channels[0].structure == "delta"
+    built = export_build(chain, "c-float", rate=rate, seconds=VECTORS_SECONDS,
+                         structure="tdf2")
+    assert built.plan.channels[0].structure == "tdf2"
+    assert 8.5e-6 < max(c.figures.vector_error for c in built.report.channels) < 1e-5
+    assert not built.report.ok, built.report.format_text()      # a fused build would fail
     x, _ = vectors(built)
     host = built.run(x)
     for core in (M4F, M7):
@@ -321,6 +327,9 @@ def test_holds_means_the_readme_build_passes_on_every_core(export_build, arm_bui
         # the report ran the same operations: its figure is the core's
         assert max(errors) == pytest.approx(stated, rel=0.05, abs=1e-7)
         assert max(errors) <= built.report.tolerance
+    # "holds" also for gcc's default dialect, which fuses multiply-adds on the M4F
+    done, errors = readme_check(built, on_board(M4F, arm_build(built, M4F, "fused")))
+    assert done.returncode == 0 and max(errors) <= built.report.tolerance, done.stdout
 
 
 FIXED_CHAIN = """
