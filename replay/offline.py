@@ -6,6 +6,11 @@ its state carried, so the numbers equal what the pipeline computes on the same
 samples (ChainSet's result does not depend on how the stream is cut into
 blocks). Input rows are copied as text, so every input column, numeric or not,
 comes out exactly as it went in; only the filtered values are formatted.
+
+The output is written through replay.outputfile: a temporary file created exclusively
+beside it, renamed over it at the end, so a failed or interrupted apply leaves no half
+file and an old output intact, and a symbolic link at the output's name is replaced
+itself (with --force), never written through.
 """
 
 from __future__ import annotations
@@ -24,10 +29,10 @@ from filters.noise import NoiseMeter, chain_noise_models
 from filters.spec import ChainSpec
 from monitor import __version__
 from replay.csvtext import format_full_precision
-from replay.reader import Gap, NoTimeColumnError, Recording, RecordingError
+from replay.outputfile import NotAFileError, write_whole
+from replay.reader import TEXT_ERRORS, Gap, NoTimeColumnError, Recording, RecordingError
 from replay.writer import MAGIC
 
-_OUT_BUFFER = 1 << 20
 _T = TypeVar("_T")
 NOISE_CHUNK_S = 10.0          # the measured noise is pooled over chunks of this much sample time
 
@@ -103,7 +108,9 @@ def apply_chain(
     rate_hz:    declared rate (Hz); else the recording's (header, --rate, or estimated),
                 else spec.rate_hz (see apply_rate).
     chain_text: the chain file text, written as `# chain:` lines of a tunetrace output.
-    force:      overwrite an existing output (never the input itself).
+    force:      replace an existing output, atomically (never the input itself); a
+                symbolic link at out_path is replaced, its target is left alone; a
+                terminal, /dev/null or a named pipe at out_path is written into.
     progress:   called now and then with the fraction of the input read (0..1).
     Raises ValueError (the chain cannot run at that rate), RecordingError, OSError.
     """
@@ -126,43 +133,12 @@ def apply_chain(
         raise RecordingError(f"{recording.path} already has a column {clash[0]}; rename it "
                              "before applying a chain.")
     ours = header.format_version is not None
-    resplit = header.delimiter != ","
-    rows = gaps = 0
-    shown = 0.0
-    out = open(out_path, "w" if force else "x", encoding="utf-8", newline="",
-               buffering=_OUT_BUFFER)
     try:
-        with out:
-            out.write(_output_header(recording, kept + added, rate, origin, chain_text, ours))
-            for item in recording.segments(keep_text=True):
-                if isinstance(item, Gap):
-                    gaps += 1
-                    meter.break_here()
-                    if ours:
-                        out.write(f"# gap: {item.reason}\n")
-                    continue
-                lines = item.lines
-                if drop:
-                    lines = [line.rsplit(",", drop)[0] for line in lines]
-                elif resplit:
-                    lines = _to_commas(lines, header.delimiter)
-                values = item.block.values
-                result = chain.process(values)
-                meter.update(values, result)
-                filtered = format_full_precision(result)
-                out.write("\n".join([f"{a},{b}" for a, b in zip(lines, filtered, strict=True)]))
-                out.write("\n")
-                rows += len(lines)
-                now = time.monotonic()
-                if progress is not None and now - shown > 0.2:
-                    shown = now
-                    progress(recording.progress())
-    except BaseException:
-        # a half-written output would pass for a whole one: remove it (disk full, Ctrl-C)
-        if os.path.isfile(out_path):
-            os.unlink(out_path)
-        raise
-    size = os.path.getsize(out_path) if os.path.isfile(out_path) else 0
+        size, rows, gaps = _write_output(recording, chain, meter, out_path, force, progress,
+                                         _output_header(recording, kept + added, rate,
+                                                        origin, chain_text, ours))
+    except NotAFileError as exc:
+        raise RecordingError(str(exc)) from None
     if progress is not None:
         progress(1.0)
     sums = meter.total()
@@ -170,6 +146,49 @@ def apply_chain(
                         origin, out_path, size, time.monotonic() - began, tuple(channels),
                         tuple(float(v) for v in sums.reduction_db()),
                         tuple(m.white_reduction_db for m in models))
+
+
+def _write_output(recording: Recording, chain: ChainSet, meter: NoiseMeter, out_path: str,
+                  force: bool, progress: Callable[[float], None] | None, head: str
+                  ) -> tuple[int, int, int]:
+    """Filter every segment and write the output whole; (bytes, rows, gaps) written."""
+    header = recording.header
+    drop = len(header.filtered_columns)
+    ours = header.format_version is not None
+    resplit = header.delimiter != ","
+    rows = gaps = size = 0
+    shown = 0.0
+    with write_whole(out_path, replace=force) as raw:
+        def write(text: str) -> None:
+            nonlocal size            # counted here: a pipe or a terminal cannot tell()
+            # text columns of another logger keep their exact bytes (reader.TEXT_ERRORS)
+            size += raw.write(text.encode("utf-8", errors=TEXT_ERRORS))
+
+        write(head)
+        for item in recording.segments(keep_text=True):
+            if isinstance(item, Gap):
+                gaps += 1
+                meter.break_here()
+                if ours:
+                    write(f"# gap: {item.reason}\n")
+                continue
+            lines = item.lines
+            if drop:
+                lines = [line.rsplit(",", drop)[0] for line in lines]
+            elif resplit:
+                lines = _to_commas(lines, header.delimiter)
+            values = item.block.values
+            result = chain.process(values)
+            meter.update(values, result)
+            filtered = format_full_precision(result)
+            write("\n".join([f"{a},{b}" for a, b in zip(lines, filtered, strict=True)])
+                  + "\n")
+            rows += len(lines)
+            now = time.monotonic()
+            if progress is not None and now - shown > 0.2:
+                shown = now
+                progress(recording.progress())
+    return size, rows, gaps
 
 
 def _output_header(recording: Recording, columns: list[str], rate: float, origin: str,

@@ -8,12 +8,21 @@ are counted, comment lines `# gap: ...` are surfaced where they stand, a torn
 last line is ignored and reported. The closing `# rate_hz_measured:` trailer is
 read from the file's tail when the file opens; `rate()` prefers it to a header
 rate that was only estimated early (a declared or device rate stays).
+
+Odd bytes are read as the live path reads them (replay.textlines): LF, CRLF and
+bare CR end lines, a leading UTF-8 byte-order mark is dropped, a line longer than
+`max_line_bytes` is one bad row and is never held whole, a row with a NUL byte is
+a bad row, binary or overlong lines before the header row are bad rows. Bytes that
+are not UTF-8 make a row bad when they sit in a column of numbers; in a text column
+of another logger's CSV they are kept exactly (apply writes them back byte for byte).
 """
 
 from __future__ import annotations
 
 import csv
+import io
 import os
+import re
 from collections.abc import Iterator
 from dataclasses import dataclass
 from typing import BinaryIO
@@ -29,6 +38,18 @@ from replay.header import (
     read_header,
     split_unit,
 )
+from replay.textlines import (
+    Head,
+    HeadError,
+    is_text,
+    iter_lines,
+    last_line_end,
+    normalize_line_ends,
+    read_head,
+    shown,
+    size_text,
+    split_lines,
+)
 from replay.timecolumn import find_time_column, match_override
 
 __all__ = ["Gap", "NoTimeColumnError", "Recording", "RecordingError", "RecordingHeader",
@@ -37,6 +58,10 @@ __all__ = ["Gap", "NoTimeColumnError", "Recording", "RecordingError", "Recording
 CHUNK_BYTES = 1 << 20
 MAX_DATA_LINE = 1 << 20       # a longer 'row' is counted bad and skipped
 _SAMPLE_LINES = 50
+_SAMPLE_BYTES = 1 << 20       # how far past the header row plain-CSV columns are sampled
+# the decoding of data rows: bytes that are not UTF-8 survive as lone surrogates, so a
+# text column of another logger's CSV is copied exactly and a number column refuses them
+TEXT_ERRORS = "surrogateescape"
 
 
 class NoTimeColumnError(RecordingError):
@@ -98,6 +123,9 @@ class Recording:
                  without a time column, which then gets t_host = row / rate; without
                  it such a file raises NoTimeColumnError).
     chunk_rows:  at most this many rows per Block.
+    chunk_bytes: bytes read per parse (memory per chunk).
+    max_line_bytes: a longer line is one bad row, skipped without being held in memory
+                 (default MAX_DATA_LINE).
 
     `header`, `schema` are known after construction; `bad_rows`, `torn_last_line`,
     `gaps` and `rows` grow while the file is read (final after one full pass).
@@ -106,14 +134,17 @@ class Recording:
 
     def __init__(self, path: str | os.PathLike[str], time_column: str | None = None,
                  rate_hz: float | None = None, chunk_rows: int = 65536,
-                 chunk_bytes: int = CHUNK_BYTES) -> None:
+                 chunk_bytes: int = CHUNK_BYTES, max_line_bytes: int | None = None) -> None:
+        if max_line_bytes is None:
+            max_line_bytes = MAX_DATA_LINE
         if rate_hz is not None and not rate_hz > 0:
             raise RecordingError(f"--rate {rate_hz!r} must be a positive number of Hz.")
-        if chunk_rows < 1 or chunk_bytes < 1:
-            raise ValueError("chunk_rows and chunk_bytes must be at least 1")
+        if chunk_rows < 1 or chunk_bytes < 1 or max_line_bytes < 1:
+            raise ValueError("chunk_rows, chunk_bytes and max_line_bytes must be at least 1")
         self.path = os.fspath(path)
         self.chunk_rows = chunk_rows
         self.chunk_bytes = chunk_bytes
+        self.max_line_bytes = max_line_bytes
         self.rate_override = rate_hz
         self.bad_rows = 0
         self.last_bad_row: str | None = None
@@ -124,8 +155,7 @@ class Recording:
         self._scanned_to = 0
         self._index: list[tuple[int, float, int]] = []  # (byte offset, first t, row number)
         try:
-            with _open(self.path) as f:
-                self.header, self._data_start = read_header(f, self.path)
+            self._read_head()
             self._setup_columns(time_column)
             self._t_first, self._rate_estimate = self._peek()
             if self.header.format_version:
@@ -149,7 +179,7 @@ class Recording:
             size = f.seek(0, os.SEEK_END)
             back = min(size - self._data_start, 1 << 16)
             f.seek(size - back)
-            lines = f.read(back).split(b"\n")
+            lines = split_lines(f.read(back))
         # the first piece may start mid-line, the last one is torn or empty
         whole = lines[1:-1] if size - back > self._data_start else lines[:-1]
         for raw in reversed(whole):
@@ -238,6 +268,34 @@ class Recording:
 
     # -- header ----------------------------------------------------------------
 
+    def _read_head(self) -> None:
+        """Comment lines and header row, read by the rules of replay.textlines (BOM, CR,
+        binary lines skipped and counted) and parsed by replay.header."""
+        with _open(self.path) as f:
+            try:
+                head = read_head(f, self.path, MAX_HEADER_LINE)
+            except HeadError as exc:
+                raise RecordingError(str(exc)) from None
+        self._refuse_numbers_as_names(head)
+        self.header, _ = read_header(io.BytesIO(head.text), self.path)
+        self._data_start = head.data_start
+        self.bad_rows = head.skipped
+        self.last_bad_row = head.last_skipped
+
+    def _refuse_numbers_as_names(self, head: Head) -> None:
+        """A 'header row' of numbers is a data row: taking it for names would lose it."""
+        row = head.text.decode("utf-8").rstrip("\n").rsplit("\n", 1)[-1]
+        if not all(_parses(field) for field in re.split(r"[,;\t]", row)):
+            return
+        if head.skipped:
+            raise RecordingError(
+                f"{self.path} has no header row: {head.skipped} binary or overlong "
+                f"line{'s' if head.skipped > 1 else ''} (over {size_text(MAX_HEADER_LINE)}) "
+                "came before its first row of numbers; give a CSV file whose first line "
+                "names its columns.")
+        raise RecordingError(f"{self.path}: its first row holds numbers, not column names; "
+                             "add a header row naming the columns (for example time,load).")
+
     def _setup_columns(self, time_column: str | None) -> None:
         """Which parsed column is time, which are channels, device time and counter."""
         h = self.header
@@ -283,8 +341,10 @@ class Recording:
         h = self.header
         numeric = self._numeric_columns()
         if not numeric:
+            skipped = (f" ({self.bad_rows} binary or overlong lines came before it)"
+                       if self.bad_rows else "")
             raise RecordingError(f"{self.path}: no column under the header row holds "
-                                 "numbers; give a CSV file with numeric columns.")
+                                 f"numbers{skipped}; give a CSV file with numeric columns.")
         names = [cols[i] for i in numeric]
         # which column is time: the rule shared by every verb (replay.timecolumn)
         if time_column is not None:
@@ -315,20 +375,35 @@ class Recording:
         return channels, units
 
     def _numeric_columns(self) -> list[int]:
-        """Indices of plain-CSV columns whose first well-formed data row holds numbers."""
+        """Indices of plain-CSV columns that hold numbers in at least half of the first
+        well-formed data rows (so one damaged first row does not make a column text)."""
         width = len(self.header.columns)
+        rows: list[list[str]] = []
+        widths: dict[int, int] = {}
         with _open(self.path) as f:
-            f.seek(self._data_start)
-            for _ in range(_SAMPLE_LINES):
-                raw = f.readline(MAX_HEADER_LINE)
-                if not raw:
-                    break
-                line = raw.decode("utf-8", errors="replace").strip()
+            for _, raw in iter_lines(f, self._data_start, MAX_HEADER_LINE, _SAMPLE_BYTES):
+                if raw is None or not is_text(raw):
+                    continue
+                line = raw.decode("utf-8", errors=TEXT_ERRORS).strip()
                 if not line or line.startswith("#"):
                     continue
                 fields = next(csv.reader([line], delimiter=self.header.delimiter))
-                if len(fields) == width:
-                    return [i for i, text in enumerate(fields) if _parses(text)]
+                if len(fields) != width:
+                    widths[len(fields)] = widths.get(len(fields), 0) + 1
+                    continue
+                rows.append(fields)
+                if len(rows) >= _SAMPLE_LINES:
+                    break
+        numeric = [i for i in range(width)
+                   if rows and 2 * sum(_parses(row[i]) for row in rows) >= len(rows)]
+        if numeric or (rows and not widths):
+            return numeric
+        if widths:          # rows of another width, none of the header's that holds numbers
+            common = max(widths, key=widths.__getitem__)
+            raise RecordingError(
+                f"{self.path}: its header row names {width} column{'s' if width > 1 else ''} "
+                f"but the rows under it have {common} field{'s' if common > 1 else ''}; "
+                "fix the header row so it names every column.")
         raise RecordingError(f"{self.path} has no data rows with {width} fields under its "
                              "header row; give a file with at least one row of readings.")
 
@@ -342,9 +417,10 @@ class Recording:
                 return
             f.seek(size - back)
             tail = f.read(back)
-        if not tail.endswith(b"\n"):
+        if not tail.endswith((b"\n", b"\r")):
             return
-        last = tail[:-1].rsplit(b"\n", 1)[-1].decode("utf-8", errors="replace")
+        pieces = split_lines(tail)
+        last = (pieces[-2] if len(pieces) > 1 else b"").decode("utf-8", errors="replace")
         found = parse_rate_trailer(last)
         if found is not None:
             h = self.header
@@ -361,9 +437,12 @@ class Recording:
                 if count >= 4096:
                     break
         if not count:
-            bad = f" ({self.bad_rows} bad rows)" if self.bad_rows else ""
-            raise RecordingError(f"{self.path} has no data rows{bad}; record or export "
-                                 "some readings first.")
+            if not self.bad_rows:
+                raise RecordingError(f"{self.path} has no data rows; record or export "
+                                     "some readings first.")
+            raise RecordingError(f"{self.path} has no data rows ({self.bad_rows} bad rows); "
+                                 "check that its rows match its header row (the last bad "
+                                 f"one: {shown(self.last_bad_row or '', 40)!r}).")
         t = np.concatenate(times)
         if self._t_idx is None:
             return float(t[0]), None
@@ -389,16 +468,16 @@ class Recording:
                     yield from self._tail_line(leftover, row, keep_text, offset)
                     return
                 data = leftover + data
-                cut = data.rfind(b"\n") + 1
+                cut = last_line_end(data)
                 leftover = data[cut:]
                 if not cut:
-                    if len(leftover) > MAX_DATA_LINE:       # not a CSV row: memory stays bounded
+                    if len(leftover) > self.max_line_bytes:   # not a CSV row: memory bounded
                         offset = self._skip_line(f, leftover, offset)
                         leftover = b""
                     continue
                 start, offset = offset, offset + cut
                 fresh = start >= self._scanned_to
-                items = self._chunk(data[:cut].decode("utf-8", errors="replace"),
+                items = self._chunk(data[:cut].decode("utf-8", errors=TEXT_ERRORS),
                                     row, keep_text, fresh)
                 segments = [item for item in items if isinstance(item, Segment)]
                 if segments:
@@ -411,20 +490,36 @@ class Recording:
                 yield from items
 
     def _skip_line(self, f: BinaryIO, head: bytes, offset: int) -> int:
-        """Count an overlong line as bad and read past its end; returns the next line's offset."""
-        if offset >= self._scanned_to:
+        """Count an overlong line as bad and read past its end (LF or CR) in bounded
+        pieces; returns the next line's offset, where the file is left positioned."""
+        fresh = offset >= self._scanned_to
+        if fresh:
             self.bad_rows += 1
-            self.last_bad_row = head[:200].decode("utf-8", errors="replace")
+            self.last_bad_row = shown(head)
         offset += len(head)
         while True:
-            piece = f.readline(MAX_DATA_LINE)
-            offset += len(piece)
-            if not piece or piece.endswith(b"\n"):
-                return offset
+            try:
+                piece = f.read(1 << 16)
+            except OSError as exc:
+                raise _read_failed(self.path, exc) from None
+            end = min((i for i in (piece.find(b"\n"), piece.find(b"\r")) if i >= 0),
+                      default=-1)
+            if end < 0:
+                offset += len(piece)
+                if not piece:
+                    if fresh:
+                        self._scanned_to = max(self._scanned_to, offset)
+                    return offset
+                continue
+            offset += end + 1            # a CR's LF, if any, starts the next line as blank
+            f.seek(offset)
+            if fresh:                    # counted once: a later pass starts past it
+                self._scanned_to = max(self._scanned_to, offset)
+            return offset
 
     def _tail_line(self, leftover: bytes, row: int, keep_text: bool, start: int
                    ) -> Iterator[Segment | Gap]:
-        text = leftover.decode("utf-8", errors="replace").rstrip("\r")
+        text = leftover.decode("utf-8", errors=TEXT_ERRORS)
         if not text.strip():
             return
         fresh = start >= self._scanned_to
@@ -446,15 +541,23 @@ class Recording:
 
     def _chunk(self, text: str, row: int, keep_text: bool, fresh: bool
                ) -> list[Segment | Gap]:
-        """Parse complete lines (text ends with a newline) into Segments and Gaps."""
-        if "\r" in text:
-            text = text.replace("\r", "")
+        """Parse complete lines (text ends with a line end) into Segments and Gaps."""
+        text = normalize_line_ends(text)
         lines = text.split("\n")[:-1]
-        if "#" not in text and "\n\n" not in text and not text.startswith("\n"):
+        limit = self.max_line_bytes
+        suspect = "\x00" in text or (4 * len(text) > limit
+                                     and 4 * max(map(len, lines), default=0) > limit)
+        if not suspect and "#" not in text and "\n\n" not in text \
+                and not text.startswith("\n"):
             return self._segment(lines, row, keep_text, fresh)
         items: list[Segment | Gap] = []
         run: list[str] = []
         for line in [*lines, "#"]:
+            if suspect and (
+                    "\x00" in line or (4 * len(line) > limit and len(line.encode(
+                        "utf-8", errors=TEXT_ERRORS)) > limit)):
+                self._count_bad(line, fresh)  # NUL padding or an overlong row
+                continue
             if not line.startswith("#") and line.strip():
                 run.append(line)
                 continue
@@ -466,8 +569,13 @@ class Recording:
             if line.startswith("# gap:"):
                 if fresh:
                     self.gaps += 1
-                items.append(Gap(line[len("# gap:"):].strip(), row))
+                items.append(Gap(shown(line[len("# gap:"):].strip()), row))
         return items
+
+    def _count_bad(self, line: str, fresh: bool) -> None:
+        if fresh:
+            self.bad_rows += 1
+            self.last_bad_row = shown(line)
 
     def _segment(self, lines: list[str], row: int, keep_text: bool, fresh: bool
                  ) -> list[Segment]:
@@ -480,10 +588,12 @@ class Recording:
                 table = table[finite]
         if good is not None:
             if fresh:
-                self.bad_rows += len(lines) - len(good)
-                bad = sorted(set(range(len(lines))) - set(good))
+                # a whitespace-only line is blank, not bad (as in the live framer)
+                bad = [i for i in sorted(set(range(len(lines))) - set(good))
+                       if lines[i].strip()]
+                self.bad_rows += len(bad)
                 if bad:
-                    self.last_bad_row = lines[bad[-1]][:200]
+                    self.last_bad_row = shown(lines[bad[-1]])
             lines = [lines[i] for i in good]
         return [
             Segment(self._block(table[begin:begin + self.chunk_rows], row + begin),

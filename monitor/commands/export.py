@@ -7,7 +7,10 @@ on the board).
 Fixed point needs each channel's full scale (--full-scale): the units that map to +-1.0.
 A chain the target cannot hold is refused with the suggested fix unless
 --accept-quantization; a chain whose quantized poles are unstable is always refused.
-Existing files in DIR are replaced only with --force.
+Existing files in DIR are replaced only with --force. Files are written only inside DIR
+and never through a link: each is written whole to a temporary file created exclusively
+in DIR, then renamed over its name; a symbolic link at an output's name is refused
+without --force and replaced itself (its target left untouched) with --force.
 """
 
 from __future__ import annotations
@@ -52,7 +55,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--accept-quantization", action="store_true",
                         help="export even when the target cannot hold the chain "
                              "(the README then says so)")
-    parser.add_argument("--force", action="store_true", help="replace existing files in DIR")
+    parser.add_argument("--force", action="store_true",
+                        help="replace existing files in DIR (a symbolic link at an output's "
+                             "name is replaced itself; its target is never written)")
 
 
 def parse_full_scale(text: str | None, channels: list[str], fixed: bool) -> dict[str, float]:
@@ -131,9 +136,16 @@ def run(args: argparse.Namespace) -> int:
         raise UserError(f"-o {directory} is a file; give a directory.")
     clash = existing_files(directory, list(texts))
     if clash and not args.force:
+        if clash[0].is_symlink():
+            raise UserError(f"{clash[0]} is a symbolic link; export never writes through a "
+                            "link: remove it, choose another -o DIR, or add --force to "
+                            "replace the link itself.")
         raise UserError(f"{clash[0]} already exists; choose another -o DIR or add --force.")
     try:
-        written = write_files(directory, texts)
+        written = write_files(directory, texts, replace=args.force)
+    except FileExistsError as exc:
+        raise UserError(f"{exc.filename or directory} appeared while exporting; choose "
+                        "another -o DIR or add --force.", exit_code=1) from None
     except OSError as exc:
         raise UserError(f"cannot write into {directory}: {exc.strerror or exc}.",
                         exit_code=1) from None

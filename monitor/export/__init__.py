@@ -1,12 +1,14 @@
 """Firmware export: a chain as C99 (float, Q15, Q31) with a self-test main and test vectors.
 
 `export_texts(spec, plan, report, chain_path, vectors_seconds, forced)` returns the file
-texts; `write_files(directory, texts, force)` writes them. The command-line side (options,
-refusals) is monitor.commands.export.
+texts; `write_files(directory, texts, replace)` writes them, only inside `directory` and
+never through a link (replay.outputfile). The command-line side (options, refusals) is
+monitor.commands.export.
 """
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 from filters.fixedreport import QuantizationReport
@@ -41,19 +43,37 @@ def export_texts(spec: ChainSpec, plan: ExportPlan, report: QuantizationReport,
 
 
 def existing_files(directory: Path, names: list[str]) -> list[Path]:
-    """The files among `names` that already exist in `directory`."""
-    return [directory / n for n in names if (directory / n).exists()]
+    """The names among `names` already taken in `directory`: files, folders and symbolic
+    links (a dangling link included)."""
+    return [directory / n for n in names if os.path.lexists(directory / n)]
 
 
-def write_files(directory: Path, texts: dict[str, str]) -> list[Path]:
-    """Write every text into `directory` (created if missing); each file is replaced whole
-    (written beside it, then renamed) so a failed export never leaves half a file."""
-    directory.mkdir(parents=True, exist_ok=True)
-    written = []
-    for name, text in texts.items():
-        path = directory / name
-        tmp = path.with_name(path.name + ".part")
-        tmp.write_text(text, encoding="utf-8")
-        tmp.replace(path)
-        written.append(path)
-    return written
+def write_files(directory: Path, texts: dict[str, str], replace: bool = True) -> list[Path]:
+    """Write every text (UTF-8) into `directory`, created if missing; returns the paths.
+
+    Each file is first written whole to a temporary file created exclusively beside it
+    (a link planted at that name is never followed), then renamed over its name, so a
+    failed export leaves no half file and the previous files as they were. A symbolic
+    link at a file's name is replaced itself; its target is never written.
+    replace=False: a name already taken raises FileExistsError before anything is written.
+    """
+    from replay.outputfile import OutputFolder
+
+    with OutputFolder(directory, create=True) as folder:
+        if not replace:
+            for name in texts:
+                folder.reserve(name)
+        temps: dict[str, str] = {}
+        try:
+            for name, text in texts.items():
+                temp, handle = folder.open_temp(name)
+                temps[name] = temp
+                with handle:
+                    handle.write(text.encode("utf-8"))
+            for name, temp in temps.items():
+                folder.commit(temp, name, replace)
+        except BaseException:
+            for temp in temps.values():
+                folder.discard(temp)
+            raise
+    return [directory / name for name in texts]
