@@ -8,6 +8,7 @@ import os
 import subprocess
 import sys
 import textwrap
+import threading
 import time
 
 import numpy as np
@@ -16,13 +17,12 @@ from replay_helpers import (
     CHAIN_TEXT,
     SCHEMA,
     data_lines,
-    wait_until,
     weigh_station,
     write_recording,
 )
 
 from monitor.block import Block, Schema
-from replay.writer import RecordingFull, RecordingWriter
+from replay.writer import FLUSH_INTERVAL_S, RecordingFull, RecordingWriter
 
 
 def test_values_round_trip_exactly_with_header(tmp_path):
@@ -125,16 +125,52 @@ def test_duration_limit_keeps_rows_inside_it(tmp_path):
     assert float(rows[-1].split(",")[0]) <= 1.0
 
 
-def test_rows_reach_the_file_within_100_ms_without_more_blocks(tmp_path):
-    path = tmp_path / "rec.csv"
-    writer = RecordingWriter(path, SCHEMA, "sim://", 250.0, "declared", None)
-    try:
-        values = weigh_station(3)
-        writer.write_block(Block(np.arange(3) / 250.0, values))
-        # nothing else arrives: the background flusher must write the rows
-        assert wait_until(lambda: len(data_lines(path)) == 4, timeout=5.0)
-    finally:
-        writer.close()
+class FlusherTimer(threading.Condition):
+    """The writer's condition variable, noting each timed wait asked of it: the deadline
+    (monotonic s) the background flusher set itself for writing pending rows."""
+
+    def __init__(self, *args, **kwargs) -> None:
+        super().__init__(*args, **kwargs)
+        self.deadlines: list[float] = []
+
+    def wait(self, timeout: float | None = None) -> bool:
+        if timeout is not None:
+            self.deadlines.append(time.monotonic() + timeout)
+        return super().wait(timeout)
+
+
+def test_rows_reach_the_file_within_100_ms_without_more_blocks(tmp_path, monkeypatch):
+    """The promise (DESIGN.md, replay/writer.py): rows reach the OS at most 100 ms after
+    write_block returned, with no further call. Checked two ways in one trial: the flush
+    loop's own timer must aim at most 100 ms after the write (exact, whatever the load),
+    and the rows must be in the file when looked at 150 ms after it. A busy CI machine may
+    stall the flusher thread past 150 ms now and then, so up to three trials are made;
+    one that holds both is the proof (a 0.4 s flusher delay can hold neither)."""
+    import replay.writer as writer_module
+
+    trials = []
+    for trial in range(3):
+        path = tmp_path / f"rec{trial}.csv"
+        with monkeypatch.context() as patch:
+            patch.setattr(writer_module.threading, "Condition", FlusherTimer)
+            writer = RecordingWriter(path, SCHEMA, "sim://", 250.0, "declared", None)
+        try:
+            timer = writer._cond
+            assert isinstance(timer, FlusherTimer)
+            writer.write_block(Block(np.arange(3) / 250.0, weigh_station(3)))
+            returned = time.monotonic()
+            time.sleep(max(0.0, returned + 0.150 - time.monotonic()))
+            present = len(data_lines(path)) == 4       # header row + 3 rows
+            aims = [d - returned for d in timer.deadlines]
+        finally:
+            writer.close()
+        trials.append((present, aims))
+        # the flusher set itself a deadline for these rows, and none later than 100 ms
+        if present and aims and max(aims) <= FLUSH_INTERVAL_S:
+            return
+    pytest.fail(f"rows not in the file 150 ms after the write, or the flusher aimed past "
+                f"{FLUSH_INTERVAL_S} s: (present, deadlines after the write in s) per trial "
+                f"{trials}")
 
 
 def test_disk_full_raises_oserror(tmp_path):
