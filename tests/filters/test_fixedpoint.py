@@ -231,3 +231,49 @@ def test_quantize_group_takes_the_smallest_shift_and_rounds_to_half_an_lsb(value
 def test_every_kind_has_an_export_form(kind, params, form):
     plan = plan_stage(design(kind, **params), "zero", "stage 1")
     assert plan.form == form and plan.start == "zero" and plan.label == "stage 1"
+
+
+def _half_up_reference(value: float, full_scale: float, fmt) -> int:
+    """floor(value / full_scale * 2^F + 1/2) in exact decimal arithmetic (decimal module,
+    no float rounding), saturated: the module docstring's "round half up"."""
+    from decimal import ROUND_FLOOR, Decimal, localcontext
+
+    with localcontext() as ctx:
+        ctx.prec = 80
+        scaled = Decimal(value) / Decimal(full_scale) * (1 << fmt.frac)
+        q = int((scaled + Decimal("0.5")).quantize(Decimal(1), rounding=ROUND_FLOOR))
+    return min(max(q, fmt.min_int), fmt.max_int)
+
+
+@pytest.mark.parametrize("fmt", [Q15, Q31])
+@pytest.mark.parametrize("full_scale", [2.0, 16.0, 0.5])   # e.g. +-2 g vib, +-16 A current
+def test_readings_round_half_up_to_the_nearest_lsb_not_truncate(fmt, full_scale):
+    from decimal import ROUND_HALF_UP, Decimal
+
+    lsb = full_scale / 2**fmt.frac
+    k = np.array([0, 1, 2, 3, 7, 1000, 12345, -1, -2, -3, -1000, -12345])
+    ties = (k + 0.5) * lsb                      # exactly half an LSB above an integer
+    near = np.concatenate([(k + 0.49) * lsb, (k + 0.51) * lsb, (k + 0.999) * lsb])
+    # a vibration trace: 18 Hz belt plus white noise and a spike, sampled at 250 Hz
+    rng = np.random.default_rng(12)
+    t = np.arange(2000) / 250.0
+    trace = 0.4 * np.sin(2 * np.pi * 18.0 * t) + 0.05 * rng.standard_normal(t.size)
+    trace[700] = 1.7
+    readings = np.concatenate([ties, near, full_scale * trace / 2, [full_scale * 3.0,
+                                                                    -full_scale * 3.0]])
+    got = to_fixed(readings, full_scale, fmt)
+    expected = [_half_up_reference(float(v), full_scale, fmt) for v in readings]
+    assert got.tolist() == expected
+    # the same by decimal's ROUND_HALF_UP where it agrees with half up (non-negative values;
+    # ROUND_HALF_UP takes negative ties away from zero, half up takes them towards +inf)
+    for v, g in zip(readings, got.tolist(), strict=True):
+        if 0 <= v < full_scale:
+            exact = Decimal(float(v)) / Decimal(full_scale) * (1 << fmt.frac)
+            assert g == min(int(exact.quantize(Decimal(1), rounding=ROUND_HALF_UP)),
+                            fmt.max_int)
+    assert got[:len(k)].tolist() == (k + 1).tolist()      # ties go up, negative ones too
+    # rounding to the nearest LSB: never more than half an LSB from the reading
+    inside = np.abs(readings) < full_scale * 0.99
+    assert np.all(np.abs(from_fixed(got, full_scale, fmt)[inside] - readings[inside])
+                  <= lsb / 2)
+    assert got[-2:].tolist() == [fmt.max_int, fmt.min_int]
