@@ -45,24 +45,44 @@ def open_pty_pipeline(path: str, **kwargs) -> Pipeline:
 
 
 class ListSink:
-    """A recorder that keeps what it is given (optionally failing or slow)."""
+    """A recorder that keeps what it is given, in the order given (optionally failing or
+    slow): `events` is one list of ("block", (block, filtered)) and ("gap", reason), so a
+    test sees where each gap sits among the blocks, as a recording file would."""
 
     def __init__(self, fail_after: int | None = None, delay_s: float = 0.0) -> None:
-        self.blocks: list[tuple[Block, np.ndarray]] = []
-        self.gaps: list[str] = []
+        self.events: list[tuple[str, object]] = []
         self.closed = False
         self.fail_after = fail_after
         self.delay_s = delay_s
         self.path = "memory"
 
+    @property
+    def blocks(self) -> list[tuple[Block, np.ndarray]]:
+        return [item for kind, item in list(self.events) if kind == "block"]
+
+    @property
+    def gaps(self) -> list[str]:
+        return [item for kind, item in list(self.events) if kind == "gap"]
+
     def write_block(self, block: Block, filtered: np.ndarray) -> None:
         if self.fail_after is not None and len(self.blocks) >= self.fail_after:
             raise OSError(28, "No space left on device")
         time.sleep(self.delay_s)
-        self.blocks.append((block, filtered))
+        self.events.append(("block", (block, filtered)))
 
     def write_gap(self, reason: str) -> None:
-        self.gaps.append(reason)
+        self.events.append(("gap", reason))
+
+    def rows_and_gaps(self, column: int = 0) -> list[object]:
+        """The stream as the sink saw it: each row's value in `column`, and each gap's
+        reason where it came."""
+        out: list[object] = []
+        for kind, item in list(self.events):
+            if kind == "block":
+                out += item[0].values[:, column].tolist()
+            else:
+                out.append(item)
+        return out
 
     def close(self) -> None:
         self.closed = True
@@ -350,6 +370,64 @@ def test_device_vanishes_and_returns_nothing_delivered_lost(tmp_path, wait_for):
     raw = pipe.ring.latest(1000).raw
     assert raw[:, 0].tolist() == list(range(80))
     assert pipe.status().gaps >= 2 and any("vanished" in g for g in sink.gaps)
+    # in the recording the gaps sit where they happened: after row 49, before row 50
+    seen = sink.rows_and_gaps()
+    assert [x for x in seen if not isinstance(x, str)] == list(range(80))
+    cut = seen.index(50)
+    assert seen[cut - 1 - len(sink.gaps)] == 49
+    assert all(isinstance(x, str) for x in seen[cut - len(sink.gaps):cut])
+
+
+class ScriptedSource:
+    """A block source that plays a script of reads: each step is (gaps, rows), the gaps
+    being the ones that came before that read's rows (the block-source contract)."""
+
+    schema = Schema(("load",))
+
+    def __init__(self, steps: list[tuple[list[str], list[float]]]) -> None:
+        self.steps = list(steps)
+        self.state = "connected"
+        self._gaps: list[str] = []
+
+    def read_block(self, timeout: float) -> Block | None:
+        if not self.steps:
+            self.state = "ended"
+            return None
+        gaps, rows = self.steps.pop(0)
+        self._gaps += gaps
+        if not rows:
+            return None
+        t = np.asarray(rows, dtype=np.float64) / 100.0
+        return Block(t_host=t, values=np.asarray(rows, dtype=np.float64).reshape(-1, 1))
+
+    def take_gaps(self) -> list[str]:
+        gaps, self._gaps = self._gaps, []
+        return gaps
+
+    def describe(self) -> str:
+        return "script"
+
+    def rate_hint(self):
+        return (100.0, "declared")
+
+    def close(self) -> None:
+        self.state = "ended"
+
+
+def test_a_reads_gaps_reach_the_sink_before_its_block(wait_for):
+    # DEVELOPERS.md, gap order: take_gaps() after read_block() are gaps that came before
+    # that block, so the recording must get them first. One ordered list tells.
+    steps = [([], [0.0, 1.0]), (["reconnected"], [2.0, 3.0]), (["5 frames dropped"], []),
+             (["a", "b"], [4.0]), ([], [5.0])]
+    sink = ListSink()
+    pipe = Pipeline(ScriptedSource(steps), rate_hz=100.0, sink=sink)
+    pipe.start()
+    assert wait_for(lambda: not pipe.status().running)
+    pipe.stop()
+    assert pipe.status().error is None
+    assert sink.rows_and_gaps() == [0.0, 1.0, "reconnected", 2.0, 3.0, "5 frames dropped",
+                                    "a", "b", 4.0, 5.0]
+    assert sink.closed
 
 
 def test_framed_source_drains_what_is_waiting_and_timestamps_follow_the_rate():
