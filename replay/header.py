@@ -78,6 +78,21 @@ def parse_rate_trailer(line: str) -> tuple[float, str, int] | None:
     return rate, match.group(2), int(match.group(3))
 
 
+def parse_rate_value(value: str) -> tuple[float | None, str | None]:
+    """The value of a `# rate_hz:` line -> (Hz, origin): `250.0 (declared)` ->
+    (250.0, "declared"); `unknown` (the rate was not known when the file opened; the
+    writer may leave spaces after it) and anything that is not a finite rate > 0 ->
+    (None, None)."""
+    number, _, origin = value.strip().partition(" ")
+    try:
+        rate = float(number)
+    except ValueError:
+        return None, None
+    if not (0 < rate < float("inf")):
+        return None, None
+    return rate, origin.strip("() ") or None
+
+
 def split_unit(name: str) -> tuple[str, str]:
     """'load [kg]' or 'load[kg]' -> ('load', 'kg'); no brackets -> (name, '')."""
     match = _UNIT_RE.match(name)
@@ -125,12 +140,7 @@ def _header_comment(header: RecordingHeader, body: str, line: str, chain: list[s
     if header.format_version and key == "chain":
         chain.append(line.split(":", 1)[1][1:] if ": " in line else "")
     elif header.format_version and key == "rate_hz":
-        number, _, origin = value.partition(" ")
-        try:
-            header.rate_hz = float(number)
-        except ValueError:
-            header.rate_hz = None
-        header.rate_origin = origin.strip("() ") or None
+        header.rate_hz, header.rate_origin = parse_rate_value(value)
     elif header.format_version and key == "channels":
         header.channels_units = tuple(split_unit(item) for item in value.split(",")
                                       if item.strip())

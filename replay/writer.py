@@ -8,6 +8,20 @@ where the live rate moved and the chain was redesigned; and, when it closes, the
 trailer `# rate_hz_measured: <Hz> (arrival, <n> samples)`: the rate measured over
 the whole recording from each block's arrival time (the time of its last row)
 with monitor.arrival_rate, which readers prefer to an estimated header rate.
+
+A recording may open before the rate is known (rows are never held back for it):
+its header then reads `# rate_hz: unknown` followed by spaces that keep room for
+the rate, and `rate_found` later writes the rate into that room in place (one
+pwrite inside the first page, so a reader sees either line whole) and appends
+`# rate_hz_found: <Hz> (<origin>)` where it became known. With filtered columns,
+rows before that line carry raw values in them (the chain waits for the rate).
+A file cut before the rate was known keeps `unknown`; readers then estimate the
+rate from t_host or take --rate.
+
+Column names come from the stream; replay.column_names renames those that would
+clash (`t_host`, a repeated name, `x_filtered` beside `x`, ...) and the header
+lists each as `# renamed: "<stream name>" -> "<column name>" (<why>)`.
+
 Rows reach the operating system at most 100 ms after `write_block` returned: a
 killed process loses nothing older (the kernel keeps written data even on
 `kill -9`; only power loss needs the fsync done at `close`).
@@ -16,6 +30,7 @@ killed process loses nothing older (the kernel keeps written data even on
 from __future__ import annotations
 
 import csv
+import errno
 import io
 import os
 import threading
@@ -27,11 +42,17 @@ import numpy as np
 from monitor import __version__
 from monitor.arrival_rate import ArrivalRate
 from monitor.block import Block, Schema
+from replay.column_names import RecordingColumns, Rename, recording_columns
 from replay.csvtext import format_full_precision, format_rows, format_seconds, join_columns
 
 MAGIC = "# tunetrace recording 1"
 RATE_CHANGED_KEY = "rate_hz_changed"
 RATE_MEASURED_KEY = "rate_hz_measured"
+RATE_FOUND_KEY = "rate_hz_found"
+RATE_LINE = "# rate_hz: "
+# Room kept after `# rate_hz: ` when the rate is not known at open: the longest
+# value, a float repr (24 characters) and " (estimated)", fits with some to spare.
+RATE_ROOM = 40
 FLUSH_INTERVAL_S = 0.1
 # The background flusher wakes this long after the first unflushed row, well
 # inside FLUSH_INTERVAL_S even when the machine is busy.
@@ -52,17 +73,20 @@ def _one_line(text: str) -> str:
     return " ".join(str(text).split())
 
 
+def columns_of(schema: Schema, with_filtered: bool) -> RecordingColumns:
+    """The names a recording of `schema` writes (clashing stream names renamed)."""
+    return recording_columns(schema.counter_column or None, schema.time_column or None,
+                             schema.channels, with_filtered)
+
+
 def data_columns(schema: Schema, with_filtered: bool) -> list[str]:
     """Column names of a recording of `schema`, in file order."""
-    columns = ["t_host"]
-    if schema.counter_column:
-        columns.append(schema.counter_column)
-    if schema.time_column:
-        columns.append(schema.time_column)
-    columns.extend(schema.channels)
-    if with_filtered:
-        columns.extend(f"{name}_filtered" for name in schema.channels)
-    return columns
+    return list(columns_of(schema, with_filtered).columns)
+
+
+def rate_text(rate_hz: float, rate_origin: str | None) -> str:
+    """The rate as a recording writes it: `250.0 (declared)`."""
+    return f"{float(rate_hz)!r} ({_one_line(rate_origin or 'declared')})"
 
 
 def header_text(
@@ -73,30 +97,39 @@ def header_text(
     chain_text: str | None,
     with_filtered: bool,
     started: datetime | None = None,
+    rate_room: bool = False,
 ) -> str:
-    """The comment lines and CSV header row that open a recording."""
+    """The comment lines and CSV header row that open a recording.
+
+    rate_room: when the rate is unknown, pad `# rate_hz: unknown` with spaces to
+    RATE_ROOM characters so that RecordingWriter.rate_found can fill it in place.
+    """
     started = started or datetime.now(UTC)
+    names = columns_of(schema, with_filtered)
     channels = ", ".join(
-        f"{name} [{schema.unit(i)}]" if schema.unit(i) else name
-        for i, name in enumerate(schema.channels)
+        f"{name} [{_one_line(schema.unit(i))}]" if schema.unit(i).strip() else name
+        for i, name in enumerate(names.channels)
     )
-    rate = f"{float(rate_hz)!r} ({rate_origin or 'declared'})" if rate_hz else "unknown"
+    rate = rate_text(rate_hz, rate_origin) if rate_hz else "unknown"
+    if rate_room and not rate_hz:
+        rate = rate.ljust(RATE_ROOM)
     lines = [
         MAGIC,
         f"# tool: tunetrace {__version__}",
         f"# started: {started.strftime('%Y-%m-%dT%H:%M:%SZ')}",
         f"# source: {_one_line(source_description)}",
-        f"# rate_hz: {rate}",
+        f"{RATE_LINE}{rate}",
         f"# channels: {channels}",
     ]
-    if schema.time_column:
-        lines.append(f"# time_column: {schema.time_column}")
-    if schema.counter_column:
-        lines.append(f"# counter_column: {schema.counter_column}")
+    if names.time_column:
+        lines.append(f"# time_column: {names.time_column}")
+    if names.counter_column:
+        lines.append(f"# counter_column: {names.counter_column}")
+    lines.extend(rename.comment() for rename in names.renames)
     for line in (chain_text or "").splitlines():
         lines.append(f"# chain: {line}".rstrip())
     row = io.StringIO()
-    csv.writer(row, lineterminator="\n").writerow(data_columns(schema, with_filtered))
+    csv.writer(row, lineterminator="\n").writerow(names.columns)
     return "\n".join(lines) + "\n" + row.getvalue()
 
 
@@ -114,6 +147,10 @@ class RecordingWriter:
     limit_bytes, limit_seconds: stop cleanly once the file would grow beyond
                         this many bytes or the recording beyond this many seconds;
                         `write_block` then raises RecordingFull once.
+    rate_to_come:       the rate is not known yet (rate_hz None) and the caller will
+                        call `rate_found` once it is: the header keeps room for it.
+
+    `renames` lists the stream names written under another name (replay.column_names).
 
     `write_block`, `write_gap` and `close` are called by one thread (the
     pipeline's reader); a small background thread only flushes. OSError from
@@ -132,6 +169,7 @@ class RecordingWriter:
         with_filtered: bool = False,
         limit_bytes: int | None = None,
         limit_seconds: float | None = None,
+        rate_to_come: bool = False,
     ) -> None:
         if limit_bytes is not None and not limit_bytes > 0:
             raise ValueError(f"limit_bytes = {limit_bytes!r} must be a positive number of bytes")
@@ -141,6 +179,7 @@ class RecordingWriter:
             raise ValueError("schema has no channels; a recording needs at least one")
         self.path = os.fspath(path)
         self.schema = schema
+        self.renames: tuple[Rename, ...] = columns_of(schema, with_filtered).renames
         self.with_filtered = with_filtered
         self.limit_bytes = limit_bytes
         self.limit_seconds = limit_seconds
@@ -158,10 +197,17 @@ class RecordingWriter:
         self._closed = False
         self._cond = threading.Condition()
         self._arrival = ArrivalRate(live=False)     # the trailer's session rate
+        header = header_text(schema, source_description, rate_hz, rate_origin, chain_text,
+                             with_filtered, rate_room=rate_to_come)
+        # where the rate goes when it is found (None: known at open, or no room kept)
+        self._rate_at: int | None = None
+        self._rate_pending = rate_to_come and not rate_hz
+        if self._rate_pending:
+            self._rate_at = len(header[:header.index(f"\n{RATE_LINE}") + 1
+                                       + len(RATE_LINE)].encode("utf-8"))
         self._file = open(self.path, "wb" if force else "xb", buffering=0)
         try:
-            self._write_now(header_text(schema, source_description, rate_hz, rate_origin,
-                                        chain_text, with_filtered))
+            self._write_now(header)
         except OSError:
             self._file.close()
             if not force:
@@ -234,6 +280,27 @@ class RecordingWriter:
             self._raise_pending_error()
             self._append(f"# {RATE_CHANGED_KEY}: {float(rate_hz)!r} ({_one_line(origin)}, "
                          f"was {float(previous_hz)!r})\n", 0)
+            self._flush_or_fail()
+
+    def rate_found(self, rate_hz: float, origin: str) -> None:
+        """The rate became known: fill the header's room (if kept) and mark this point of
+        the file with `# rate_hz_found: <Hz> (<origin>)`; flushes. Later calls do nothing."""
+        if not self._rate_pending or self.full or self._failed or self._closed \
+                or not rate_hz > 0:
+            return
+        self._rate_pending = False
+        text = rate_text(rate_hz, origin)
+        with self._cond:
+            self._raise_pending_error()
+            at, self._rate_at = self._rate_at, None
+            if at is not None and len(text) <= RATE_ROOM:
+                try:
+                    os.pwrite(self._file.fileno(), text.ljust(RATE_ROOM).encode("ascii"), at)
+                except OSError as exc:
+                    if exc.errno != errno.ESPIPE:       # a pipe keeps `unknown`; the line
+                        self._failed = True             # below still says it
+                        raise
+            self._append(f"# {RATE_FOUND_KEY}: {text}\n", 0)
             self._flush_or_fail()
 
     def measured_rate(self) -> tuple[float, int] | None:

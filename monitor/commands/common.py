@@ -9,7 +9,8 @@ from __future__ import annotations
 import argparse
 import math
 import os
-import time
+import sys
+from collections.abc import Callable
 from typing import Any
 
 from monitor.binary_options import add_binary_options, binary_framing, text_time_options
@@ -18,8 +19,6 @@ from monitor.errors import UserError
 DEFAULT_BAUD = 115200
 DEFAULT_RING_SECONDS = 600.0
 RING_RATE_IF_UNKNOWN_HZ = 1000.0
-MAX_BUFFERED_SAMPLES = 200_000       # held while the recording waits for the sample rate
-RATE_WAIT_LIMIT_S = 5.0
 
 
 def positive_float(text: str) -> float:
@@ -198,6 +197,12 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
         check_record_path(record, force=force)
     capacity = ring_capacity(getattr(args, "ring_seconds", DEFAULT_RING_SECONDS), rate)
     if isinstance(source, str):
+        # a live source fits arrival times even at a declared rate (the estimate shown,
+        # the recording's trailer): import scipy.stats here, or the reader thread stops
+        # for about a second at its first fit while the board's rows wait in the port
+        from monitor.arrival_rate import warm_up
+
+        warm_up()
         from monitor.sources import open_byte_source
 
         binary = binary_framing(args, source)        # checked before the port opens
@@ -214,7 +219,8 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
     pipeline = Pipeline(source, chain_spec=spec, rate_hz=getattr(args, "rate", None),
                         ring_capacity=capacity)
     if record:
-        pipeline.submit(start_recording(pipeline, record, chain_text, force=force))
+        pipeline.submit(start_recording(pipeline, record, chain_text, force=force,
+                                        announce=note_on_stderr))
     return pipeline
 
 
@@ -237,70 +243,112 @@ def start_recording(pipeline: Any, path: str, chain_text: str | None = None,
                     force: bool = False, **writer_options: Any) -> Any:
     """The StartRecording command for a recording of `pipeline`'s stream to `path`.
 
-    writer_options: more RecordingWriter keywords (with_filtered, limit_bytes, limit_seconds).
+    writer_options: more RecordingWriter keywords (with_filtered, limit_bytes,
+    limit_seconds) and DeferredRecording's `announce`.
     """
     from monitor.pipeline import StartRecording
 
     return StartRecording(DeferredRecording(pipeline, path, chain_text, force, **writer_options))
 
 
-class DeferredRecording:
-    """A block sink that opens the RecordingWriter once channels and rate are known.
+def note_on_stderr(sentence: str) -> None:
+    """`announce` for DeferredRecording: `tunetrace: <sentence>.` on stderr."""
+    from monitor.stop_signals import print_safely
 
-    The header of a recording names the channels and the sample rate, which a
-    live stream only reveals after its first lines; blocks are held (at most
-    MAX_BUFFERED_SAMPLES, at most RATE_WAIT_LIMIT_S) until the rate is known.
+    print_safely(f"tunetrace: {sentence}.", sys.stderr)
+
+
+MAX_HELD_GAPS = 100                 # gap marks kept while no block has named the columns
+
+
+class DeferredRecording:
+    """A block sink that opens the RecordingWriter at the stream's first block.
+
+    The header of a recording names the channels, which a live stream only reveals
+    with its first lines, and the sample rate, which may take seconds more (arrival
+    times settle in 1.5 to 3 s). Rows never wait for the rate: the writer opens at
+    the first block, so every row reaches the file within the writer's flush
+    interval (100 ms) and a killed process keeps them. Opened before the rate is
+    known, the header reads `# rate_hz: unknown` with room kept; the rate is filled
+    in (RecordingWriter.rate_found) at the first block after the pipeline knows it.
+    Gap marks that come before any block are held (at most MAX_HELD_GAPS).
+
+    announce: called with one sentence (no final stop) per stream column that the
+              file writes under another name (replay.column_names), when it opens.
     """
 
     def __init__(self, pipeline: Any, path: str, chain_text: str | None, force: bool,
+                 announce: Callable[[str], None] | None = None,
                  **writer_options: Any) -> None:
         self.pipeline = pipeline
         self.writer_options = writer_options
         self.path = path
         self.chain_text = chain_text
         self.force = force
+        self.announce = announce
         self._writer: Any = None
-        self._held: list[tuple[str, tuple]] = []
-        self._held_samples = 0
-        self._first_at: float | None = None
+        self._rate_pending = False
+        self._held_gaps: list[str] = []
+        self._gaps_not_held = 0
 
     def write_block(self, block: Any, filtered: Any = None) -> None:
-        self._forward("write_block", (block, filtered), len(block))
+        if self._writer is None:
+            self._open(block.values.shape[1])
+        self._fill_rate()
+        self._writer.write_block(block, filtered)
 
     def write_gap(self, reason: str) -> None:
-        self._forward("write_gap", (reason,), 0)
+        if self._writer is None and self.pipeline.schema is None:
+            if len(self._held_gaps) < MAX_HELD_GAPS:
+                self._held_gaps.append(reason)
+            else:
+                self._gaps_not_held += 1
+            return
+        if self._writer is None:
+            self._open(None)
+        self._writer.write_gap(reason)
 
     def write_rate_change(self, rate_hz: float, origin: str, previous_hz: float) -> None:
-        self._forward("write_rate_change", (rate_hz, origin, previous_hz), 0)
+        if self._writer is None:        # the pipeline only redesigns after a block
+            return
+        self._fill_rate()
+        self._writer.write_rate_change(rate_hz, origin, previous_hz)
 
     def close(self) -> None:
-        if self._writer is None and self._held and self.pipeline.schema is not None:
-            self._open()
+        if self._writer is None and self._held_gaps and self.pipeline.schema is not None:
+            self._open(None)
         if self._writer is not None:
+            self._fill_rate()
             self._writer.close()
 
-    def _forward(self, method: str, args: tuple, samples: int) -> None:
-        if self._writer is None:
-            self._held.append((method, args))
-            self._held_samples += samples
-            self._first_at = self._first_at or time.monotonic()
-            waited = time.monotonic() - self._first_at
-            if self.pipeline.schema is None or (
-                    self.pipeline.rate() is None and waited < RATE_WAIT_LIMIT_S
-                    and self._held_samples < MAX_BUFFERED_SAMPLES):
-                return
-            self._open()
+    def _fill_rate(self) -> None:
+        if not self._rate_pending:
             return
-        getattr(self._writer, method)(*args)
+        rate = self.pipeline.rate()
+        if rate is not None:
+            self._rate_pending = False
+            self._writer.rate_found(rate[0], rate[1])
 
-    def _open(self) -> None:
+    def _open(self, width: int | None) -> None:
+        from monitor.block import Schema
         from replay.writer import RecordingWriter
 
+        schema = self.pipeline.schema
+        if schema is None or (width is not None and len(schema.channels) != width):
+            # no names yet (or not this block's): the pipeline's own default names
+            schema = Schema(tuple(f"ch{i}" for i in range(width or 0)))
         rate = self.pipeline.rate()
         self._writer = RecordingWriter(
-            self.path, self.pipeline.schema, self.pipeline.source.describe(),
+            self.path, schema, self.pipeline.source.describe(),
             rate[0] if rate else None, rate[1] if rate else None, self.chain_text,
-            force=self.force, **self.writer_options)
-        held, self._held = self._held, []
-        for method, args in held:
-            getattr(self._writer, method)(*args)
+            force=self.force, rate_to_come=rate is None, **self.writer_options)
+        self._rate_pending = rate is None
+        if self.announce is not None:
+            for rename in self._writer.renames:
+                self.announce(rename.sentence())
+        held, self._held_gaps = self._held_gaps, []
+        for reason in held:
+            self._writer.write_gap(reason)
+        if self._gaps_not_held:
+            self._writer.write_gap(f"{self._gaps_not_held} more gaps before the first row")
+            self._gaps_not_held = 0

@@ -33,7 +33,11 @@ def run(args: argparse.Namespace) -> int:
 
 
 def run_session(pipeline: Any, args: argparse.Namespace) -> int:
-    """Plain stats lines with --plain, else the terminal UI; both stop the pipeline at the end."""
+    """Plain stats lines with --plain, else the terminal UI; both stop the pipeline at the end.
+
+    SIGTERM and SIGHUP stop either like Ctrl-C (monitor.stop_signals): the
+    pipeline stops, any recording closes with its trailer and fsync, and the status is 0.
+    """
     if getattr(args, "plain", False):
         return run_plain(pipeline, getattr(args, "duration", None))
     try:
@@ -48,59 +52,51 @@ def run_session(pipeline: Any, args: argparse.Namespace) -> int:
 
 def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
               err: TextIO | None = None) -> int:
-    """Print one stats line per second until `duration` s, Ctrl-C or the end of the source."""
+    """Print one stats line per second until `duration` s, Ctrl-C, SIGTERM, SIGHUP or the
+    end of the source."""
+    from monitor.stop_signals import StopRequest, print_safely
+
     out, err = out or sys.stdout, err or sys.stderr
     plus_minus = "±" if _can_print(out, "±") else "+/-"
-    previous = _interrupt_on_sigterm()
     from monitor.stats import SessionNoise
 
     pipeline.noise = SessionNoise()
-    pipeline.start()
-    started = time.monotonic()
-    next_line, shown_total = started + STATS_INTERVAL_S, 0
-    reported: set[str] = set()
-    try:
-        while True:
-            now = time.monotonic()
-            status = pipeline.status()
-            _report_problems(status, reported, err)
-            if not status.running or (duration is not None and now - started >= duration):
-                break
-            if now >= next_line:
-                total = status.samples_total
-                stats = _newest_stats(pipeline, total - shown_total)
-                print(stats_line(now - started, status, pipeline, stats, plus_minus),
-                      file=out, flush=True)
-                shown_total = total
-                next_line += STATS_INTERVAL_S * max(1, int((now - next_line) // STATS_INTERVAL_S))
-            wake = next_line if duration is None else min(next_line, started + duration)
-            time.sleep(max(0.0, min(0.05, wake - time.monotonic())))
-    except KeyboardInterrupt:
-        pass
-    finally:
-        pipeline.stop()
-        if previous is not None:
-            signal.signal(signal.SIGTERM, previous)
-    status = pipeline.status()
-    _report_problems(status, reported, err)
-    print(summary_line(time.monotonic() - started, status, pipeline, pipeline.noise.figures()),
-          file=out, flush=True)
+    with StopRequest() as stop:
+        stop.watch(signal.SIGINT)       # Ctrl-C sets the flag too: nothing cuts the stop short
+        pipeline.start()
+        started = time.monotonic()
+        next_line, shown_total = started + STATS_INTERVAL_S, 0
+        reported: set[str] = set()
+        try:
+            while not stop.requested:
+                now = time.monotonic()
+                status = pipeline.status()
+                _report_problems(status, reported, err)
+                if not status.running or (duration is not None and now - started >= duration):
+                    break
+                if now >= next_line:
+                    total = status.samples_total
+                    stats = _newest_stats(pipeline, total - shown_total)
+                    line = stats_line(now - started, status, pipeline, stats, plus_minus)
+                    if not print_safely(line, out):
+                        break                   # the terminal hung up or the pipe closed
+                    shown_total = total
+                    next_line += STATS_INTERVAL_S * max(1, int((now - next_line)
+                                                               // STATS_INTERVAL_S))
+                wake = next_line if duration is None else min(next_line, started + duration)
+                time.sleep(max(0.0, min(0.05, wake - time.monotonic())))
+        except KeyboardInterrupt:
+            pass
+        finally:
+            pipeline.stop()
+        status = pipeline.status()
+        _report_problems(status, reported, err)
+        print_safely(summary_line(time.monotonic() - started, status, pipeline,
+                                  pipeline.noise.figures()), out)
     if status.error:
         raise UserError(f"the stream stopped on an internal error ({status.error}); "
                         f"please report it.", exit_code=1)
     return 0
-
-
-def _interrupt_on_sigterm() -> Any:
-    """Let SIGTERM (kill, timeout, a service manager) end the run like Ctrl-C, with the
-    summary line; returns the previous handler, or None off the main thread."""
-    def interrupt(signum: int, frame: Any) -> None:
-        raise KeyboardInterrupt
-
-    try:
-        return signal.signal(signal.SIGTERM, interrupt)
-    except ValueError:                  # not the main thread
-        return None
 
 
 def _can_print(stream: TextIO, text: str) -> bool:
@@ -117,7 +113,9 @@ def _report_problems(status: Any, reported: set[str], err: TextIO) -> None:
                  status.notice):
         if text and text not in reported:
             reported.add(text)
-            print(f"tunetrace: {text}", file=err, flush=True)
+            from monitor.stop_signals import print_safely
+
+            print_safely(f"tunetrace: {text}", err)     # after a hangup stderr is gone
 
 
 RATE_MOVE_SHOWN_S = 10.0       # how long a stats line says that the rate moved

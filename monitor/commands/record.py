@@ -81,8 +81,18 @@ class _WatchedSink:
 
 
 def run(args: argparse.Namespace) -> int:
+    from monitor.stop_signals import StopRequest
+
+    # SIGTERM and SIGHUP (terminal closed, SSH dropped) stop like Ctrl-C from the start,
+    # so even one that comes while the port opens ends with a closed file and a summary
+    with StopRequest() as stop:
+        return _record(args, stop)
+
+
+def _record(args: argparse.Namespace, stop: Any) -> int:
     from monitor.commands.common import DeferredRecording, build_pipeline, check_record_path
     from monitor.pipeline import StartRecording
+    from monitor.stop_signals import print_safely
     from replay.writer import RecordingFull, open_error_sentence
 
     path = args.output
@@ -98,17 +108,18 @@ def run(args: argparse.Namespace) -> int:
     args.ring_seconds = 10.0    # headless: only a little history is kept
     pipeline = build_pipeline(args, args.source, chain_text=chain_text, chain_name=args.chain)
     sink = _WatchedSink(DeferredRecording(
-        pipeline, path, chain_text, args.force, with_filtered=args.with_filtered,
+        pipeline, path, chain_text, args.force, announce=_note_rename,
+        with_filtered=args.with_filtered,
         limit_bytes=int(args.max_bytes) if args.max_bytes else None,
         limit_seconds=args.max_seconds))
     pipeline.submit(StartRecording(sink))
-    print(f"tunetrace record: {pipeline.status().source_description} -> {path} "
-          "(Ctrl-C stops)", file=sys.stderr, flush=True)
-    previous = signal.signal(signal.SIGTERM, _interrupt)
+    print_safely(f"tunetrace record: {pipeline.status().source_description} -> {path} "
+                 "(Ctrl-C stops)", sys.stderr)
     started = time.monotonic()
+    stop.watch(signal.SIGINT)       # Ctrl-C too sets the flag now: no exception mid-stop
     pipeline.start()
     try:
-        while True:
+        while not stop.requested:
             time.sleep(POLL_S)
             status = pipeline.status()
             if not status.running or (status.recording is None and status.recording_error):
@@ -119,11 +130,10 @@ def run(args: argparse.Namespace) -> int:
         pass
     finally:
         pipeline.stop()
-        signal.signal(signal.SIGTERM, previous)
     status = pipeline.status()
-    print(summary(path, status, time.monotonic() - started), flush=True)
+    print_safely(summary(path, status, time.monotonic() - started), sys.stdout)
     if isinstance(sink.error, RecordingFull):
-        print(f"tunetrace record: recording stopped: {sink.error}", file=sys.stderr)
+        print_safely(f"tunetrace record: recording stopped: {sink.error}", sys.stderr)
         return 0
     if isinstance(sink.error, OSError):
         raise UserError(open_error_sentence(sink.error, path), exit_code=1)
@@ -136,8 +146,10 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _interrupt(signum: int, frame: Any) -> None:
-    raise KeyboardInterrupt
+def _note_rename(sentence: str) -> None:
+    from monitor.stop_signals import print_safely
+
+    print_safely(f"tunetrace record: {sentence}.", sys.stderr)
 
 
 def summary(path: str, status: Any, seconds: float) -> str:

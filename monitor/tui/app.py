@@ -356,9 +356,11 @@ def run_app(pipeline: Any, args: argparse.Namespace) -> int:
         pipeline.start()
     except RuntimeError:
         pass  # the command started it already
+    from monitor.stop_signals import run_ui
+
     app = TunetraceApp(pipeline, args)
     try:
-        result = app.run()
+        result = run_ui(app, pipeline)          # SIGTERM and SIGHUP quit it like q
     finally:
         pipeline.stop()
     status = pipeline.status()
