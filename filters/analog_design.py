@@ -7,11 +7,29 @@ from __future__ import annotations
 
 import numpy as np
 
-from filters.checks import below_nyquist, choice, fmt, integer, near_nyquist, number, positive
+from filters.checks import (
+    below_nyquist,
+    check_q,
+    choice,
+    echo,
+    fmt,
+    integer,
+    near_nyquist,
+    not_too_low,
+    number,
+    positive,
+)
 from filters.design import StageDesign
 from filters.discretize import discretize
 from filters.kinds import BANDS, BESSEL_NORMS, ORDER_RANGE
-from filters.prototypes import BAND_FAMILIES, AnalogPrototype, prototype_for
+from filters.prototypes import (
+    BAND_FAMILIES,
+    AnalogPrototype,
+    prototype_for,
+    rc_cutoff_hz,
+    rl_cutoff_hz,
+    rlc_centre_q,
+)
 from filters.spec import METHODS
 
 # The digital response may differ from the analog one by this much at the cutoff (dB).
@@ -21,6 +39,10 @@ MISMATCH_WARN_DB = 1.0
 ZOH_ERROR_WARN = 1e-6
 # Forward Euler is warned about when T exceeds this fraction of the largest stable T.
 EULER_WARN_FRACTION = 0.8
+# Chebyshev type I passband ripple (dB). Designs use 0.01 to 3 dB (common practice);
+# these bounds only keep 10^(ripple/10) - 1, which scipy.signal.cheby1 divides by and
+# raises to powers, away from 0 and from overflow.
+RIPPLE_DB_RANGE = (1e-6, 100.0)
 
 _COMPONENT_UNITS = {"r_ohm": " ohm", "c_farad": " F", "l_henry": " H"}
 _COMPONENT_SETS = {
@@ -51,6 +73,11 @@ def _check_parameters(kind: str, params: dict[str, object], rate_hz: float) -> N
         raise ValueError(f"kind {kind!r} takes {given} or {' + '.join(components)}, not both")
     for key in ("q", "ripple_db"):
         positive(params, key)
+    if "ripple_db" in params:
+        ripple, (low_db, high_db) = number(params, "ripple_db"), RIPPLE_DB_RANGE
+        if not low_db <= ripple <= high_db:
+            raise ValueError(f"ripple_db = {fmt(ripple)} is outside the allowed range "
+                             f"{fmt(low_db)} to {fmt(high_db)} dB")
     if kind in BAND_FAMILIES:
         band = choice(params, "band", BANDS)
         if kind == "bessel":
@@ -58,7 +85,8 @@ def _check_parameters(kind: str, params: dict[str, object], rate_hz: float) -> N
         order = integer(params, "order")
         low, high = ORDER_RANGE
         if not low <= order <= high:
-            raise ValueError(f"order = {order} is outside the allowed range {low} to {high}")
+            raise ValueError(f"order = {echo(order)} is outside the allowed range {low} to "
+                             f"{high}")
         if band in ("lowpass", "highpass"):
             if "cutoff_hz" not in params or "low_hz" in params or "high_hz" in params:
                 raise ValueError(f"band = {band!r} takes cutoff_hz (low_hz and high_hz are for "
@@ -71,28 +99,46 @@ def _check_parameters(kind: str, params: dict[str, object], rate_hz: float) -> N
             below_nyquist("high_hz", hi, rate_hz)
             if lo >= hi:
                 raise ValueError(f"low_hz = {fmt(lo)} Hz must be below high_hz = {fmt(hi)} Hz")
+            not_too_low("the band high_hz - low_hz is", hi - lo, rate_hz,
+                        "widen the band or sample slower")
     for key in ("cutoff_hz", "centre_hz"):
         if key in params:
             below_nyquist(key, number(params, key), rate_hz)
     if "prewarp_hz" in params:
         below_nyquist("prewarp_hz", number(params, "prewarp_hz"), rate_hz)
+    _check_from_components(kind, params, rate_hz)
+    if kind.startswith("rlc") and "q" in params and "centre_hz" in params:
+        check_q("q", number(params, "q"), number(params, "centre_hz"), rate_hz)
+    if kind == "second-order-lowpass":
+        check_q("q", number(params, "q"), number(params, "cutoff_hz"), rate_hz)
 
 
-def _check_derived_frequency(kind: str, params: dict[str, object], proto: AnalogPrototype,
-                             rate_hz: float) -> None:
-    """A cutoff or centre computed from components must lie below Nyquist too."""
+def _check_from_components(kind: str, params: dict[str, object], rate_hz: float) -> None:
+    """A cutoff or centre (and Q) computed from components must lie in range too; they are
+    computed through logarithms (filters.prototypes), so extreme parts give inf or 0
+    here and a sentence, not an overflow."""
     components = _COMPONENT_SETS.get(kind, ())
     if not components or not all(k in params for k in components):
         return
-    key = "centre_hz" if kind.startswith("rlc") else "cutoff_hz"
-    value = proto.derived[key]
+    r, other = float(params["r_ohm"]), float(params[components[1]])
+    q = None
+    if kind.startswith("rlc"):
+        key = "centre_hz"
+        value, q = rlc_centre_q(r, other, float(params["c_farad"]))
+    else:
+        key = "cutoff_hz"
+        value = rc_cutoff_hz(r, other) if kind.startswith("rc") else rl_cutoff_hz(r, other)
+    given = " and ".join(f"{k} = {fmt(float(params[k]))}" for k in components)
     nyquist = rate_hz / 2
     if value >= nyquist:
-        given = " and ".join(f"{k} = {fmt(float(params[k]))}" for k in components)
         raise ValueError(
             f"{given} give {key} = {fmt(value)} Hz, at or above the Nyquist frequency "
             f"{fmt(nyquist)} Hz; allowed: {key} below {fmt(nyquist)} Hz (larger components "
             f"or a higher sample rate)")
+    not_too_low(f"{given} give {key} =", value, rate_hz,
+                "give smaller components or sample slower")
+    if q is not None:
+        check_q(f"{', '.join(components[:-1])} and {components[-1]} give q", q, value, rate_hz)
 
 
 def _mismatch_db(proto: AnalogPrototype, sos: np.ndarray, rate_hz: float) -> tuple[float, float]:
@@ -112,7 +158,6 @@ def design_analog(kind: str, params: dict[str, object], rate_hz: float) -> Stage
     """Design an analog-prototype stage; params already carry the kind's defaults."""
     _check_parameters(kind, params, rate_hz)
     proto = prototype_for(kind, params)
-    _check_derived_frequency(kind, params, proto, rate_hz)
     method = str(params["method"])
     t = 1.0 / rate_hz
     derived = dict(proto.derived)
@@ -140,10 +185,11 @@ def design_analog(kind: str, params: dict[str, object], rate_hz: float) -> Stage
         prewarp = None
     digital = discretize(proto, t, method, prewarp)
     radius = float(np.max(np.abs(digital.poles)))
-    if radius >= 1.0:
+    if not radius < 1.0:
         raise ValueError(
             f"method = {method!r} puts a pole on or outside the unit circle (|pole| = "
             f"{radius:.6f}) at {fmt(rate_hz)} Hz sampling; use tustin or a higher rate")
+
     sos = digital.sos()
     if digital.sos_error > ZOH_ERROR_WARN:
         warnings.append(

@@ -12,7 +12,9 @@ import math
 import tomllib
 from typing import Any
 
+from filters.checks import sample_rate
 from filters.kinds import BANDS, BESSEL_NORMS, COMMON_KEYS, KINDS, NUMBER, KindInfo
+from filters.limits import MAX_CHAIN_CHARS, MAX_CHANNELS, MAX_STAGES, shown
 from filters.spec import ALL_KINDS, METHODS, START_POLICIES, ChainSpec, StageSpec
 
 TOP_LEVEL_KEYS: tuple[str, ...] = ("rate_hz", "stage")
@@ -30,26 +32,70 @@ class ChainFileError(ValueError):
 
 
 def parse_chain(text: str) -> ChainSpec:
-    """Parse and validate chain-file TOML text into a ChainSpec (numbers as float, ints kept)."""
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise ChainFileError(f"the chain file is not valid TOML: {exc}") from None
+    """Parse and validate chain-file TOML text into a ChainSpec (numbers as float, ints kept).
+
+    Any text gives a ChainSpec or a ChainFileError with one short sentence, in a time
+    bounded by filters.limits (MAX_CHAIN_CHARS, MAX_STAGES, MAX_CHANNELS).
+    """
+    if not isinstance(text, str):
+        raise ChainFileError(f"a chain file is text, not {type(text).__name__}")
+    if len(text) > MAX_CHAIN_CHARS:
+        raise ChainFileError(
+            f"the chain file has {len(text)} characters, more than the {MAX_CHAIN_CHARS} a "
+            f"chain of at most {MAX_STAGES} stages needs; is it the right file?")
+    data = _load_toml(text)
     unknown = [key for key in data if key not in TOP_LEVEL_KEYS]
     if unknown:
         raise ChainFileError(
-            f"unknown top-level key '{unknown[0]}'; a chain file has only "
+            f"unknown top-level key {_key(unknown[0])}; a chain file has only "
             f"rate_hz and [[stage]] tables")
     rate = data.get("rate_hz")
     if rate is not None:
-        if not _is_number(rate) or not math.isfinite(rate) or rate <= 0:
-            raise ChainFileError(f"rate_hz = {rate!r} must be a positive number of Hz")
-        rate = float(rate)
+        try:
+            rate = sample_rate(rate)
+        except ValueError as exc:
+            raise ChainFileError(str(exc).replace("'", '"')) from None
     stages = data.get("stage", [])
     if not isinstance(stages, list) or not all(isinstance(s, dict) for s in stages):
         raise ChainFileError(
             "'stage' must be an array of tables: write each stage under its own [[stage]] line")
-    return ChainSpec(tuple(_parse_stage(i + 1, table) for i, table in enumerate(stages)), rate)
+    if len(stages) > MAX_STAGES:
+        raise ChainFileError(
+            f"the chain file has {len(stages)} stages, more than the {MAX_STAGES} allowed")
+    spec = ChainSpec(tuple(_parse_stage(i + 1, table) for i, table in enumerate(stages)), rate)
+    names = {name for stage in spec.stages for name in stage.channels or ()}
+    if len(names) > MAX_CHANNELS:
+        raise ChainFileError(
+            f"the stages name {len(names)} different channels, more than the {MAX_CHANNELS} "
+            f"a stream may have")
+    return spec
+
+
+def _load_toml(text: str) -> dict[str, Any]:
+    """tomllib.loads, every failure as one ChainFileError sentence."""
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ChainFileError(f"the chain file is not valid TOML: {_short(exc)}") from None
+    except RecursionError:
+        # tomllib reads nested arrays and inline tables recursively; a chain file nests
+        # two deep at most (a channels list inside a stage)
+        raise ChainFileError("the chain file nests arrays or inline tables too deeply to "
+                             "read; a chain file needs only a channels list") from None
+    except ValueError as exc:   # an integer of more than sys.get_int_max_str_digits()
+        raise ChainFileError(f"the chain file holds a value tomllib cannot convert "
+                             f"({_short(exc)})") from None
+
+
+def _key(key: str) -> str:
+    """A key for a message: 'name', cut to filters.limits.ECHO_CHARS."""
+    return shown(key, quote="'")
+
+
+def _short(exc: Exception, limit: int = 120) -> str:
+    """An exception's message on one line, cut to `limit` characters."""
+    text = " ".join(str(exc).split())
+    return text if len(text) <= limit else text[:limit - 1] + "\u2026"
 
 
 def _parse_stage(number: int, table: dict[str, Any]) -> StageSpec:
@@ -59,7 +105,7 @@ def _parse_stage(number: int, table: dict[str, Any]) -> StageSpec:
             f"stage {number} (no kind): missing key 'kind'; give one of {_list(ALL_KINDS)}")
     if not isinstance(kind, str) or kind not in KINDS:
         raise ChainFileError(
-            f"stage {number} ({kind}): unknown kind {_toml_repr(kind)} in key 'kind'; "
+            f"stage {number} ({shown(kind, 24, quote='')}): unknown kind in key 'kind'; "
             f"the kinds are {_list(ALL_KINDS)}")
     where = f"stage {number} ({kind})"
     info = KINDS[kind]
@@ -71,7 +117,7 @@ def _parse_stage(number: int, table: dict[str, Any]) -> StageSpec:
                     f"{where}: '{key}' applies only to analog prototypes; "
                     f"{kind} is a digital stage, remove it")
             raise ChainFileError(
-                f"{where}: unknown key '{key}'; {kind} takes {_list(list(allowed))}")
+                f"{where}: unknown key {_key(key)}; {kind} takes {_list(list(allowed))}")
         _check_type(where, key, value, allowed[key])
     params = {key: _normalize(value, info.keys[key])
               for key, value in table.items() if key in info.keys}
@@ -84,6 +130,12 @@ def _parse_stage(number: int, table: dict[str, Any]) -> StageSpec:
             raise ChainFileError(
                 f"{where}: 'channels' must be a non-empty list of channel names, "
                 f'e.g. channels = ["load"]')
+        seen: set[str] = set()
+        for name in channels:
+            if name in seen:
+                raise ChainFileError(f"{where}: 'channels' names {shown(name)} twice; "
+                                     f"name each channel once")
+            seen.add(name)
         channels = tuple(channels)
     return StageSpec(kind=kind, params=params, channels=channels,
                      bypass=table.get("bypass", False), start=table.get("start", "steady"))
@@ -91,8 +143,8 @@ def _parse_stage(number: int, table: dict[str, Any]) -> StageSpec:
 
 def _check_type(where: str, key: str, value: Any, wanted: type | tuple[type, ...]) -> None:
     if wanted == NUMBER:
-        ok = _is_number(value)
-        expected = "a number"
+        ok = _is_number(value) and _fits_float(value)
+        expected = "a number" if not _is_number(value) else "a number within +-1.8e308"
     elif wanted is int:
         ok = isinstance(value, int) and not isinstance(value, bool)
         expected = "an integer"
@@ -106,11 +158,11 @@ def _check_type(where: str, key: str, value: Any, wanted: type | tuple[type, ...
         ok = isinstance(value, wanted)
         expected = "a quoted string"
     if not ok:
-        raise ChainFileError(f"{where}: '{key}' = {_toml_repr(value)} must be {expected}")
+        raise ChainFileError(f"{where}: '{key}' = {shown(value)} must be {expected}")
     choices = _CHOICES.get(key)
     if choices is not None and value not in choices:
         raise ChainFileError(
-            f"{where}: '{key}' = {_toml_repr(value)} is not allowed; choose {_list(choices)}")
+            f"{where}: '{key}' = {shown(value)} is not allowed; choose {_list(choices)}")
 
 
 def _check_alternatives(where: str, info: KindInfo, params: dict[str, Any]) -> None:
@@ -155,6 +207,15 @@ def _normalize(value: Any, wanted: type | tuple[type, ...]) -> Any:
 
 def _is_number(value: Any) -> bool:
     return isinstance(value, int | float) and not isinstance(value, bool)
+
+
+def _fits_float(value: int | float) -> bool:
+    """False for an integer beyond the float range (float() would raise OverflowError)."""
+    try:
+        float(value)
+    except OverflowError:
+        return False
+    return True
 
 
 def _list(items: Any, word: str = "or") -> str:

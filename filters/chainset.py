@@ -36,10 +36,15 @@ from typing import Any
 import numpy as np
 
 from filters.blockrun import StageRun
+from filters.limits import shown
 from filters.spec import ChainSpec, StageSpec
-from filters.stages import make_stage
+from filters.stages import check_history, history_values, make_stage
 
 _FLOAT64 = np.dtype(np.float64)
+
+
+def _quoted(name: str) -> str:
+    return shown(name, quote="'")
 
 
 class ChainSet:
@@ -61,19 +66,31 @@ class ChainSet:
         self.channels = tuple(channels)
         self.rate_hz = rate
         if len(set(self.channels)) != len(self.channels):
-            raise ValueError(f"channel names {list(self.channels)} must be unique")
+            seen: set[str] = set()
+            twice = next(c for c in self.channels if c in seen or seen.add(c))
+            raise ValueError(f"channel name {_quoted(twice)} appears twice; channel names "
+                             f"must be unique")
         self.designs = tuple(self._design(i, stage) for i, stage in enumerate(spec.stages))
+        known = set(self.channels)
         for number, stage in enumerate(spec.stages, start=1):
-            unknown = [c for c in stage.channels or () if c not in self.channels]
+            unknown = [c for c in stage.channels or () if c not in known]
             if unknown:
+                listed = ", ".join(shown(c, quote="") for c in self.channels[:8])
+                more = f" and {len(self.channels) - 8} more" if len(self.channels) > 8 else ""
                 raise ValueError(
-                    f"stage {number} ({stage.kind}): channels names '{unknown[0]}', which is "
-                    f"not a channel of this stream ({', '.join(self.channels) or 'none'})")
+                    f"stage {number} ({stage.kind}): channels names {_quoted(unknown[0])}"
+                    f", which is not a channel of this stream ({listed or 'none'}{more})")
 
+        selects = [None if s.channels is None else frozenset(s.channels) for s in spec.stages]
         members: dict[tuple[int, ...], list[int]] = {}
         for column, name in enumerate(self.channels):
-            key = tuple(i for i, _ in spec.stages_for(name))
+            key = tuple(i for i, chosen in enumerate(selects) if chosen is None or name in chosen)
             members.setdefault(key, []).append(column)
+        # the memory of every window and filter state, checked before any is allocated
+        kept = [history_values(design, stage.bypass)
+                for design, stage in zip(self.designs, spec.stages, strict=True)]
+        check_history(sum(len(columns) * sum(kept[i] for i in key)
+                          for key, columns in members.items()), len(self.channels))
         self._groups: list[tuple[np.ndarray, StageRun]] = []  # (columns, their run)
         self._place: dict[str, tuple[StageRun, int, tuple[int, ...]]] = {}
         for key, columns in members.items():

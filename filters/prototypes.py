@@ -106,11 +106,54 @@ def first_order(band: str, cutoff_hz: float, derived: dict[str, float] | None = 
     return _zpk([0.0], [-w], 1.0, band, (cutoff_hz,), (cutoff_hz,), info, rebuild)
 
 
+def _power(*factors: tuple[float, float]) -> float:
+    """prod(value ** exponent) over (value, exponent) pairs of positive finite values,
+    computed through logarithms so that it is inf or 0 where the true value lies beyond
+    the float range, never an OverflowError or a division by zero on the way (R = 1e-200
+    and C = 1e-200 give R C = 1e-400, which the plain product rounds to 0)."""
+    log = sum(exponent * math.log(value) for value, exponent in factors)
+    if log > 709.78:             # ln(1.797e308), the largest float
+        return math.inf
+    return math.exp(log)         # underflows quietly to 0.0
+
+
+def _formula(plain, *factors: tuple[float, float]) -> float:
+    """plain() (the handbook formula as written, to its last digit) where its steps stay
+    within the float range, else _power(*factors), the same value through logarithms."""
+    safe = _power(*factors)
+    try:
+        value = plain()
+    except ArithmeticError:          # a product on the way left the float range
+        return safe
+    return value if abs(value - safe) <= 1e-9 * safe else safe
+
+
+def rc_cutoff_hz(r_ohm: float, c_farad: float) -> float:
+    """1 / (2 pi R C) (Hz), inf or 0 beyond the float range."""
+    return _formula(lambda: 1 / (2 * math.pi * r_ohm * c_farad),
+                    (r_ohm, -1.0), (c_farad, -1.0), (2 * math.pi, -1.0))
+
+
+def rl_cutoff_hz(r_ohm: float, l_henry: float) -> float:
+    """R / (2 pi L) (Hz), inf or 0 beyond the float range."""
+    return _formula(lambda: r_ohm / (2 * math.pi * l_henry),
+                    (r_ohm, 1.0), (l_henry, -1.0), (2 * math.pi, -1.0))
+
+
+def rlc_centre_q(r_ohm: float, l_henry: float, c_farad: float) -> tuple[float, float]:
+    """Series RLC: (f0 = 1/(2 pi sqrt(L C)) in Hz, Q = sqrt(L/C) / R), inf or 0 beyond
+    the float range."""
+    return (_formula(lambda: 1 / (2 * math.pi * math.sqrt(l_henry * c_farad)),
+                     (l_henry, -0.5), (c_farad, -0.5), (2 * math.pi, -1.0)),
+            _formula(lambda: math.sqrt(l_henry / c_farad) / r_ohm,
+                     (l_henry, 0.5), (c_farad, -0.5), (r_ohm, -1.0)))
+
+
 def rc(band: str, cutoff_hz: float | None = None, r_ohm: float | None = None,
        c_farad: float | None = None) -> AnalogPrototype:
     """RC low-/high-pass from the cutoff (Hz) or from R (ohm) and C (farad)."""
     if r_ohm is not None and c_farad is not None:
-        return first_order(band, 1 / (2 * math.pi * r_ohm * c_farad),
+        return first_order(band, rc_cutoff_hz(r_ohm, c_farad),
                            {"r_ohm": r_ohm, "c_farad": c_farad})
     return first_order(band, float(cutoff_hz))
 
@@ -119,7 +162,7 @@ def rl(band: str, cutoff_hz: float | None = None, r_ohm: float | None = None,
        l_henry: float | None = None) -> AnalogPrototype:
     """RL low-/high-pass from the cutoff (Hz) or from R (ohm) and L (henry)."""
     if r_ohm is not None and l_henry is not None:
-        return first_order(band, r_ohm / (2 * math.pi * l_henry),
+        return first_order(band, rl_cutoff_hz(r_ohm, l_henry),
                            {"r_ohm": r_ohm, "l_henry": l_henry})
     return first_order(band, float(cutoff_hz))
 
@@ -159,8 +202,7 @@ def rlc(band: str, centre_hz: float | None = None, q: float | None = None,
         c_farad: float | None = None) -> AnalogPrototype:
     """Series RLC band-pass (across R) or notch (across L and C), from centre and Q or R, L, C."""
     if r_ohm is not None and l_henry is not None and c_farad is not None:
-        centre_hz = 1 / (2 * math.pi * math.sqrt(l_henry * c_farad))
-        q = math.sqrt(l_henry / c_farad) / r_ohm
+        centre_hz, q = rlc_centre_q(r_ohm, l_henry, c_farad)
         return resonant(band, centre_hz, q,
                         {"r_ohm": r_ohm, "l_henry": l_henry, "c_farad": c_farad})
     return resonant(band, float(centre_hz), float(q))

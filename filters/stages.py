@@ -34,6 +34,47 @@ import numpy as np
 # Below this |DC gain| a stage is treated as DC-blocking when retuned (see above).
 DC_BLOCKING_GAIN = 1e-3
 
+# Window budgets (samples). A window costs `window` operations per sample and channel
+# (lfilter's taps, np.partition's selection), where a low-pass of any length costs a
+# few. A moving average of 10 s at 1 kHz (40 s at 250 Hz) is longer than any smoothing
+# a live view needs; longer averages are a low-pass's job. A median removes spikes a
+# few samples long, so its window is a few samples to a few tens (common practice);
+# 1001 (1 s at 1 kHz) leaves a wide margin and keeps 8 channels at 1 kHz well inside
+# one core.
+MAX_AVERAGE_WINDOW = 10_000
+MAX_MEDIAN_WINDOW = 1_001
+# Memory of every stage history a chain keeps (bytes): windows and filter states, 8
+# bytes per value and channel. 64 MiB holds a 10 000-sample average on 800 channels or
+# a 1001-sample median on 8000; a practitioner's chain (a few stages of a few tens of
+# samples on a few dozen channels) needs kilobytes.
+MAX_HISTORY_BYTES = 64 << 20
+# Values np.partition may copy at once for a median (window x rows x channels): 8 MiB;
+# longer blocks are cut into pieces of this size.
+MEDIAN_WORK_VALUES = 1 << 20
+
+
+def history_values(design: Any, bypass: bool = False) -> int:
+    """Values per channel the runtime of `design` keeps between blocks (its memory / 8)."""
+    if bypass:
+        return 0
+    if design.sos is not None:
+        return 2 * int(np.shape(design.sos)[0])
+    if design.fir is not None:
+        return 2 * int(np.shape(design.fir)[0])       # taps and state
+    if design.kind == "median":
+        return int(design.params["window"]) - 1
+    return 0
+
+
+def check_history(values: int, channels: int) -> None:
+    """ValueError when `values` (summed over all `channels`) exceed MAX_HISTORY_BYTES."""
+    need = 8 * values
+    if need > MAX_HISTORY_BYTES:
+        raise ValueError(
+            f"the chain's windows and filter states on {channels} channels need "
+            f"{need / 2**20:.0f} MiB, more than the {MAX_HISTORY_BYTES >> 20} MiB allowed; "
+            f"give shorter windows or fewer channels")
+
 
 class StageRuntime:
     """Base of every runtime: start policy bookkeeping for `width` channels.
@@ -161,12 +202,11 @@ class FirStage(LinearStage):
     """
 
     def __init__(self, design: Any, width: int, start: str = "steady") -> None:
-        from scipy.signal import lfilter_zi
-
         self.taps = np.ascontiguousarray(design.fir, dtype=np.float64)
         super().__init__(design, width, start, len(self.taps) - 1)
-        self.unit_state = (lfilter_zi(self.taps, [1.0]) if self.state_dim
-                           else np.zeros(0))
+        # lfilter's steady state for a constant 1 with a = [1]: zi[k] = sum(taps[k+1:]),
+        # which lfilter_zi finds by solving a (taps-1)^2 system: 800 MB at 10 000 taps.
+        self.unit_state = np.cumsum(self.taps[::-1])[::-1][1:].copy()
         self.dc_gain = float(self.taps.sum())
         self.offset_index = 0
 
@@ -219,9 +259,15 @@ class MedianStage(StageRuntime):
         extended = np.concatenate((self.history, x))  # C-contiguous (window - 1 + n, width)
         self.history = extended[n:].copy()
         row, column = extended.strides
-        windows = np.ndarray((self.window, n, self.width), np.float64, extended, 0,
-                             (row, row, column))  # windows[j, t] = extended[t + j]
-        return np.partition(windows, half, axis=0)[half]
+        # np.partition copies window x rows x width values: at most MEDIAN_WORK_VALUES
+        rows = max(1, MEDIAN_WORK_VALUES // (self.window * self.width))
+        out = np.empty((n, self.width))
+        for first in range(0, n, rows):
+            count = min(rows, n - first)
+            windows = np.ndarray((self.window, count, self.width), np.float64, extended,
+                                 first * row, (row, row, column))  # [j, t] = extended[t + j]
+            out[first:first + count] = np.partition(windows, half, axis=0)[half]
+        return out
 
     def settle(self, column: int, x_old: float, y_old: float) -> None:
         self.history[:, column] = y_old  # a median passes a constant unchanged

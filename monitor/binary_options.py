@@ -120,6 +120,12 @@ def binary_framing(args: argparse.Namespace, source: Any) -> BinaryFraming | Non
                              sync_word=getattr(args, "sync_word", None) or DEFAULT_SYNC_WORD)
     except ValueError as exc:
         raise UserError(f"cannot decode {framing} frames: {str(exc).rstrip('.')}.") from None
+    from monitor.ring import MAX_CHANNELS
+
+    width = len(decoder.schema.channels)
+    if width > MAX_CHANNELS:
+        raise UserError(f"--layout holds {width} channel values, more than the {MAX_CHANNELS} "
+                        f"channels a stream may have; describe fewer.")
     return BinaryFraming(framing, framer, decoder)
 
 

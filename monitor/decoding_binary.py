@@ -47,6 +47,19 @@ def parse_layout(layout: str) -> tuple[str, list[tuple[str, int, int]]]:
     if not layout or layout[0] not in "<>!":
         raise ValueError(f"layout '{layout}' must start with < (little-endian) or > "
                          "(big-endian) so the byte order is explicit")
+    from monitor.framing_binary import MAX_FRAME_BYTES
+
+    # the frame size from the counts, before the fields are listed one by one below:
+    # '<99999999f' would list 1e8 of them (2.8 GB)
+    size, huge = 0, False
+    for match in _TOKEN.finditer(layout[1:]):
+        digits = match.group(1) or "1"
+        huge = huge or len(digits) > 12
+        size += int(digits[:12]) * _CODES.get(match.group(2), ("", 1))[1]
+    if huge or size > MAX_FRAME_BYTES:
+        frames = "over 10^12" if huge else str(size)
+        raise ValueError(f"layout '{layout[:40]}' makes frames of {frames} bytes, more than "
+                         f"the {MAX_FRAME_BYTES} allowed")
     order = "little" if layout[0] == "<" else "big"
     prefix = "<" if order == "little" else ">"
     body = layout[1:]

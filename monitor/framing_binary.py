@@ -23,6 +23,11 @@ from monitor.counters import BadFrames
 
 FRAMINGS: tuple[str, ...] = ("text", "cobs", "slip", "sync")
 DEFAULT_MAX_FRAME = 4096
+# Largest binary frame (payload and checksum, bytes) a layout may describe. The widest
+# stream, filters.limits.MAX_CHANNELS = 4096 float64 values with a time, a counter and
+# a CRC-32, is 32 788 bytes; 64 KiB holds it with room for padding, and a read of the
+# source (FramedSource takes up to 64 KiB at once) holds one whole frame.
+MAX_FRAME_BYTES = 1 << 16
 DEFAULT_SYNC_WORD = b"\xa5\x5a"
 
 SLIP_END = 0xC0
@@ -322,12 +327,19 @@ def make_framer(framing: str, *, frame_length: int | None = None,
     """The binary framer called `framing` ("cobs", "slip" or "sync").
 
     frame_length, check and sync_word serve the sync framer (see SyncFramer);
-    the delimited framers leave length and checksum to the decoder.
+    the delimited framers leave length and checksum to the decoder, but take max_frame
+    at least as long as a frame of frame_length bytes can be once stuffed.
     """
+    if frame_length is not None and not 1 <= frame_length <= MAX_FRAME_BYTES:
+        raise ValueError(f"frame_length {frame_length} is out of range; allowed 1.."
+                         f"{MAX_FRAME_BYTES}")
     if framing == "cobs":
-        return CobsFramer(max_frame)
+        # COBS adds one code byte per 254 data bytes, plus the first (Cheshire and Baker)
+        stuffed = frame_length + frame_length // 254 + 1 if frame_length else 0
+        return CobsFramer(max(max_frame, stuffed))
     if framing == "slip":
-        return SlipFramer(max_frame)
+        # SLIP doubles an END or ESC byte at worst (RFC 1055)
+        return SlipFramer(max(max_frame, 2 * frame_length if frame_length else 0))
     if framing == "sync":
         return SyncFramer(sync_word, frame_length=frame_length, check=check)
     raise ValueError(f"framing '{framing}' is not a binary framing; use cobs, slip or sync")

@@ -38,7 +38,14 @@ from monitor.block import Block, Schema
 from monitor.counters import BadFrames
 from monitor.framed_source import FramedSource as FramedSource  # re-exported: the live source
 from monitor.framed_source import text_source as text_source
-from monitor.ring import DEFAULT_RING_CAPACITY, Ring
+from monitor.ring import (
+    DEFAULT_RING_CAPACITY,
+    DEFAULT_RING_MEMORY,
+    MAX_CHANNELS,
+    Ring,
+    capacity_within,
+    ring_bytes,
+)
 
 READ_TIMEOUT_S = 0.05          # bounds how long stop() and commands wait
 COMMAND_QUEUE_SIZE = 64
@@ -171,22 +178,32 @@ class Pipeline:
     source:        a block source (FramedSource for live streams, ReplaySource).
     chain_spec:    the chain to build once channels and rate are known; None = identity.
     rate_hz:       declared sample rate (Hz); else the chain file's rate_hz; else the source's.
-    ring_capacity: samples of history kept (see monitor.ring for the memory formula).
+    ring_capacity: samples of history wanted (see monitor.ring for the memory formula).
     sink:          a recorder receiving every block, or None.
-    `ring` is None until the stream's channels are known (its first block).
+    ring_memory:   bytes the ring may take: a stream too wide for ring_capacity samples
+                   within it keeps fewer samples, and `notice` says so.
+    `ring` is None until the stream's channels are known (its first block), and stays
+    None for a stream wider than monitor.ring.MAX_CHANNELS: the view is refused (notice
+    says so) while the chain and the sink still get every block, so a recording keeps
+    every row.
     """
 
     def __init__(self, source: Any, chain_spec: ChainSpec | None = None,
                  rate_hz: float | None = None, ring_capacity: int = DEFAULT_RING_CAPACITY,
-                 sink: Any = None) -> None:
+                 sink: Any = None, ring_memory: int = DEFAULT_RING_MEMORY) -> None:
         if rate_hz is not None and not rate_hz > 0:
             raise ValueError(f"rate_hz = {rate_hz!r} must be a positive number of Hz")
         if not isinstance(ring_capacity, int) or ring_capacity < 1:
             raise ValueError(f"ring_capacity = {ring_capacity!r} must be a whole number >= 1")
+        if not isinstance(ring_memory, int) or ring_memory < ring_bytes(1, 1):
+            raise ValueError(f"ring_memory = {ring_memory!r} must be a whole number of bytes "
+                             f">= {ring_bytes(1, 1)}")
         self.source = source
         self.chain_spec = chain_spec
         self.ring_capacity = ring_capacity
+        self.ring_memory = ring_memory
         self.ring: Ring | None = None
+        self._ring_refused = False
         chain_hz = chain_spec.rate_hz if chain_spec is not None else None
         if rate_hz is None and chain_hz is not None and _file_rate(source) is not None:
             chain_hz = None         # a recording's own rate beats the chain's rate_hz (as apply)
@@ -294,8 +311,8 @@ class Pipeline:
 
     def _handle(self, block: Block) -> None:
         values = block.values
-        if self.ring is None:
-            self.ring = Ring(values.shape[1], self.ring_capacity)
+        if self.ring is None and not self._ring_refused:
+            self._open_ring(values.shape[1])
         self._ensure_chain(values.shape[1])
         self._follow_rate()
         try:
@@ -304,14 +321,35 @@ class Pipeline:
             self._work.chain_error = f"the chain failed ({exc}); showing raw until it is replaced"
             self._chain = ChainSet.identity(self._channels(values.shape[1]))
             filtered = self._chain.process(values)
+        ring = self.ring
         if self._chain is not self._chain_seen:
-            self._chain_seen, self._work.chain_since = self._chain, self.ring.total
-        if not self._work.paused or self._source_pauses():
-            self.ring.write(block.t_host, values, filtered)
+            self._chain_seen, self._work.chain_since = self._chain, ring.total if ring else 0
+        if ring is not None and (not self._work.paused or self._source_pauses()):
+            ring.write(block.t_host, values, filtered)
         self._to_sink("write_block", block, filtered)
         if self.noise is not None and self._work.chain_note is None:
             self.noise.feed(self._chain, values, filtered)
         self._work.frames += len(block)
+
+    def _open_ring(self, width: int) -> None:
+        """The ring for a stream `width` channels wide, within ring_memory bytes."""
+        if width > MAX_CHANNELS:
+            self._ring_refused = True
+            self._work.notice = (
+                f"the stream has {width} channels, more than the {MAX_CHANNELS} a view can "
+                f"hold, so nothing is shown; a recording still keeps every row")
+            return
+        capacity = capacity_within(width, self.ring_capacity, self.ring_memory)
+        self.ring = Ring(width, capacity)
+        if capacity < self.ring_capacity:
+            rate = self.rate()
+            kept = (f"{capacity / rate[0]:.3g} s ({capacity} samples)" if rate
+                    else f"{capacity} samples")
+            self._work.notice = (
+                f"{width} channels keep {kept} of history, fewer than the "
+                f"{self.ring_capacity:.3g} samples asked, within the "
+                f"{self.ring_memory / 2**20:.0f} MiB ring budget; give --ring-memory MB for "
+                f"more")
 
     def _channels(self, width: int) -> tuple[str, ...]:
         schema = self.source.schema

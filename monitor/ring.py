@@ -2,7 +2,9 @@
 
 Memory: (2 * channels + 1) * 8 bytes per sample * capacity (raw, filtered and
 t_host, all float64). The arrays are allocated zeroed, so pages the writer has
-not reached yet cost nothing on Linux.
+not reached yet cost nothing on Linux; a long session reaches them all, so the
+pipeline sizes the ring by a byte budget (`capacity_within`), not by the seconds
+asked for alone: a wide stream keeps fewer seconds, never more memory.
 
 Consistency without stalling the writer: the writer first publishes how far it
 is about to write (`_reserved`), writes, then publishes the new `_total`. A
@@ -21,13 +23,29 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from filters.limits import MAX_CHANNELS as MAX_CHANNELS  # the widest stream (derived there)
+
 DEFAULT_RING_CAPACITY = 600_000          # 10 minutes at 1 kHz
 BYTES_PER_VALUE = 8
+# Bytes a ring may take. The default history, 600 s at 1 kHz, of 8 channels takes
+# 600_000 * (2 * 8 + 1) * 8 = 81.6 MB; 256 MiB keeps those 600 s for up to 27 channels
+# (fewer seconds for wider streams) and is a few percent of a practitioner's laptop.
+# The readers copy from it (the plot's own history is at most 1.25 x capacity of float32
+# raw + filtered, 0.6 x the ring; a trace copies at most the window it shows), so a view
+# holds at most about 2.6 times this. `live --ring-memory MB` changes it.
+DEFAULT_RING_MEMORY = 256 << 20
+MIN_RING_MEMORY = 1 << 20
 
 
 def ring_bytes(channels: int, capacity: int) -> int:
     """Memory of a Ring in bytes: (2 * channels + 1) * 8 * capacity."""
     return (2 * channels + 1) * BYTES_PER_VALUE * capacity
+
+
+def capacity_within(channels: int, wanted: int, memory_bytes: int) -> int:
+    """Samples of history for `channels`: `wanted`, or fewer so that the ring takes at most
+    `memory_bytes` (at least one sample)."""
+    return max(1, min(int(wanted), int(memory_bytes) // ring_bytes(channels, 1)))
 
 
 @dataclass(frozen=True)
@@ -58,8 +76,9 @@ class Ring:
     """
 
     def __init__(self, channels: int, capacity: int) -> None:
-        if not isinstance(channels, int) or channels < 1:
-            raise ValueError(f"channels = {channels!r} must be a whole number >= 1")
+        if not isinstance(channels, int) or not 1 <= channels <= MAX_CHANNELS:
+            raise ValueError(f"channels = {channels!r} must be a whole number from 1 to "
+                             f"{MAX_CHANNELS}")
         if not isinstance(capacity, int) or capacity < 1:
             raise ValueError(f"capacity = {capacity!r} must be a whole number of samples >= 1")
         self.channels = channels

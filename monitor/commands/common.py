@@ -19,6 +19,7 @@ from monitor.errors import UserError
 DEFAULT_BAUD = 115200
 DEFAULT_RING_SECONDS = 600.0
 RING_RATE_IF_UNKNOWN_HZ = 1000.0
+DEFAULT_RING_MEMORY_MB = 256.0      # monitor.ring.DEFAULT_RING_MEMORY, derived there
 
 
 def positive_float(text: str) -> float:
@@ -89,7 +90,12 @@ def add_source_options(parser: argparse.ArgumentParser) -> None:
                         help=f"history kept, in seconds at the declared rate or at "
                              f"{RING_RATE_IF_UNKNOWN_HZ:g} Hz when it is not declared (default "
                              f"{DEFAULT_RING_SECONDS:g}); memory = (2 * channels + 1) * 8 bytes "
-                             f"per sample, e.g. 81.6 MB for 600 s of 8 channels at 1 kHz")
+                             f"per sample, e.g. 81.6 MB for 600 s of 8 channels at 1 kHz, "
+                             f"at most --ring-memory (a wider stream keeps fewer seconds)")
+    parser.add_argument("--ring-memory", type=positive_float, metavar="MB",
+                        default=DEFAULT_RING_MEMORY_MB,
+                        help=f"most memory the history may take, in MiB (default "
+                             f"{DEFAULT_RING_MEMORY_MB:g})")
 
 
 def load_chain_file(path: str) -> Any:
@@ -151,23 +157,29 @@ def declared_rate(args: argparse.Namespace, spec: Any, where: str | None) -> flo
 
 
 def ring_capacity(ring_seconds: float, rate_hz: float | None) -> int:
-    """Samples of history for `ring_seconds` at the rate (or 1 kHz when unknown).
+    """Samples of history for `ring_seconds` at the rate (or 1 kHz when unknown); the
+    pipeline keeps fewer when they do not fit the ring memory (ring_memory)."""
+    wanted = ring_seconds * (rate_hz or RING_RATE_IF_UNKNOWN_HZ)
+    return max(1, int(math.ceil(min(wanted, 2.0 ** 62))))
 
-    UserError when 8 channels of that history would not fit in this machine's memory.
-    """
-    from monitor.ring import ring_bytes
 
-    capacity = max(1, int(math.ceil(ring_seconds * (rate_hz or RING_RATE_IF_UNKNOWN_HZ))))
+def ring_memory(args: argparse.Namespace) -> int:
+    """--ring-memory in bytes; UserError beyond this machine's memory or below 1 MiB."""
+    from monitor.ring import MIN_RING_MEMORY
+
+    megabytes = getattr(args, "ring_memory", None) or DEFAULT_RING_MEMORY_MB
+    wanted = int(min(megabytes, 2.0 ** 40) * 2**20)
+    if wanted < MIN_RING_MEMORY:
+        raise UserError(f"--ring-memory {megabytes:g} is below the least {MIN_RING_MEMORY >> 20} "
+                        f"MiB; give more.")
     try:
         memory = os.sysconf("SC_PHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
     except (ValueError, OSError, AttributeError):      # not every system tells
-        return capacity
-    need = ring_bytes(8, capacity)
-    if need > memory:
-        raise UserError(f"--ring-seconds {ring_seconds:g} needs {need / 1e9:.1f} GB for 8 "
-                        f"channels, more than this machine's {memory / 1e9:.1f} GB; give "
-                        f"fewer seconds.")
-    return capacity
+        return wanted
+    if wanted > memory:
+        raise UserError(f"--ring-memory {megabytes:g} is more than this machine's "
+                        f"{memory / 2**20:.0f} MiB; give less.")
+    return wanted
 
 
 def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None = None,
@@ -196,6 +208,7 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
     if record:
         check_record_path(record, force=force)
     capacity = ring_capacity(getattr(args, "ring_seconds", DEFAULT_RING_SECONDS), rate)
+    memory = ring_memory(args)
     if isinstance(source, str):
         # a live source fits arrival times even at a declared rate (the estimate shown,
         # the recording's trailer): import scipy.stats here, or the reader thread stops
@@ -217,7 +230,7 @@ def build_pipeline(args: argparse.Namespace, source: Any, chain_text: str | None
                                  declared_rate=rate, **text_time_options(args))
     # the chain's rate_hz is the pipeline's own fallback (a replayed file's rate beats it)
     pipeline = Pipeline(source, chain_spec=spec, rate_hz=getattr(args, "rate", None),
-                        ring_capacity=capacity)
+                        ring_capacity=capacity, ring_memory=memory)
     if record:
         pipeline.submit(start_recording(pipeline, record, chain_text, force=force,
                                         announce=note_on_stderr))

@@ -196,8 +196,9 @@ def test_default_analysis_frequency_and_unsettled_response():
     assert A.default_analysis_hz([design("rlc-bandpass", centre_hz=18.0, q=3.0)], RATE) == 18.0
     assert A.default_analysis_hz([design("median", window=3)], RATE) == 1.0
     assert A.default_analysis_hz([], 2.0) == 0.5
-    # An EMA whose time constant exceeds the longest simulated response never settles.
-    assert A.settling_time_s(design("ema", alpha=1e-7)) == math.inf
+    # A chain whose response outlasts the longest simulation never settles: 24 EMAs at
+    # nearly the slowest allowed pole (filters.checks.MIN_FREQUENCY_FRACTION).
+    assert A.settling_time_s([design("ema", alpha=7e-6)] * 24) == math.inf
 
 
 def test_minus3db_of_a_resonant_lowpass_is_relative_to_dc():

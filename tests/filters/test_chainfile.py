@@ -186,7 +186,7 @@ def stage_specs(draw) -> StageSpec:
     for key, wanted in info.keys.items():
         if wanted == NUMBER and key in params:
             params[key] = float(params[key])
-    channels = draw(st.none() | st.lists(_names, min_size=1, max_size=3).map(tuple))
+    channels = draw(st.none() | st.lists(_names, min_size=1, max_size=3, unique=True).map(tuple))
     return StageSpec(kind=kind, params=params, channels=channels,
                      bypass=draw(st.booleans()), start=draw(st.sampled_from(("steady", "zero"))))
 

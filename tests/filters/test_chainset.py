@@ -385,8 +385,9 @@ _UNIT_DC = st.one_of(
               st.integers(1, 8), st.floats(0.5, 100.0)),
     st.builds(lambda f, m: StageSpec("rc-lowpass", {"cutoff_hz": f, "method": m}),
               st.floats(0.5, 60.0), st.sampled_from(["backward-euler", "tustin", "zoh"])),
+    # q >= 1: the notch bandwidth freq_hz / q stays below Nyquist (filters.design._notch)
     st.builds(lambda f, q: StageSpec("notch", {"freq_hz": f, "q": q}),
-              st.floats(5.0, 100.0), st.floats(0.5, 50.0)),
+              st.floats(5.0, 100.0), st.floats(1.0, 50.0)),
     st.builds(lambda a: StageSpec("ema", {"alpha": a}), st.floats(0.01, 1.0)),
     st.builds(lambda w: StageSpec("moving-average", {"window": w}), st.integers(1, 60)),
     st.builds(lambda w: StageSpec("median", {"window": 2 * w + 1}), st.integers(0, 10)),
