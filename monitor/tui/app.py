@@ -315,7 +315,8 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
         position = max(0, min(len(WINDOWS_S) - 1, position + step))
         capacity_s = self._capacity_s()
         if WINDOWS_S[position] > capacity_s and step > 0:
-            self.say(f"the history holds about {capacity_s:.0f} s; give --ring-seconds for more")
+            self.say(f"the history holds about {capacity_s:.0f} s; give --ring-seconds "
+                     "(and, for a wide stream, --ring-memory) for more")
             return
         self.ui.window_s = WINDOWS_S[position]
         self.say(f"trace window {self.ui.window_s:g} s")
