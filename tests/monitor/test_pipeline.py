@@ -280,8 +280,10 @@ def test_rate_estimated_from_arrival_then_chain_built(wait_for):
     assert wait_for(lambda: pipe.status().chain_note is None, timeout=15)
     status = pipe.status()
     assert status.rate_origin == "estimated"
-    assert status.rate_hz == pytest.approx(250.0, rel=0.05)
-    assert pipe.chain.rate_hz == pytest.approx(250.0, rel=0.05)
+    # within 0.5 %: the pipeline's own "same rate" (a settled rate further off than that
+    # redesigns the chain); the estimator settles when stable to 0.1 %
+    assert status.rate_hz == pytest.approx(250.0, rel=5e-3)
+    assert pipe.chain.rate_hz == pytest.approx(250.0, rel=5e-3)
     assert pipe.chain.spec is spec
     pipe.stop()
 
