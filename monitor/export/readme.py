@@ -122,8 +122,10 @@ def _scaling(plan: ExportPlan, report: QuantizationReport) -> list[str]:
     f, acc = (15, 32) if q == "Q15" else (31, 64)
     lines = ["## Q format and scaling", "",
              f"Samples are {q}: `int{f + 1}_t`, value = sample / 2^{f} x full scale. "
-             f"Convert a reading in units with `round(reading / full_scale * 2^{f})`, "
-             "saturated to the type's range; the output uses the same scaling. "
+             f"Convert a reading in units with `floor(reading / full_scale * 2^{f} + 0.5)` "
+             "(round half up, as the vectors were made; C's `round()` takes negative ties "
+             "away from zero and differs there by one LSB), saturated to the type's range; "
+             "the output uses the same scaling. "
              f"`{plan.prefix.upper()}_<CH>_FULL_SCALE` in `{plan.prefix}.h` holds each "
              "channel's full scale.", "",
              "| channel | full scale (units per +-1.0) | one LSB |", "|---|---|---|"]
