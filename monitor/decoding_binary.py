@@ -28,6 +28,7 @@ from monitor.block import Block, Schema
 from monitor.counters import BadFrames
 from monitor.crc import crc_algorithm, crc_rows
 from monitor.devicetime import DeviceClock, DeviceTiming, SequenceCounter
+from monitor.trackcheck import FrameGate, TrackCheck
 
 # struct code -> (numpy kind, bytes); only fixed-size numeric codes.
 _CODES: dict[str, tuple[str, int]] = {
@@ -122,7 +123,10 @@ class BinaryDecoder:
                    (8, 16 or 32; default: the field's width).
     The other fields are the channels, in layout order, as float64.
     Bad length and bad CRC are counted in `bad`; missing frames in `dropped`
-    and, one line per hole, in `take_gaps()`.
+    and, one line per hole, in `take_gaps()`. A device time or counter value that
+    is NaN, inf or off its track for one frame is one bad frame too
+    (monitor.trackcheck); such a frame at the end of a read waits for the next
+    read's first frame to be judged, and `flush()` lets it go at the end.
     """
 
     def __init__(self, layout: str, fields: Sequence[str], *, crc: str = "none",
@@ -175,6 +179,18 @@ class BinaryDecoder:
                 raise ValueError(f"counter field '{counter_field}' must be an integer field")
             _check_bits("counter", counter_bits, size)
             self.counter = SequenceCounter(counter_bits or min(size * 8, 32))
+        def whole(index: int | None) -> bool:      # an integer field holds no NaN
+            return index is not None and items[index][0][1] in "iu"
+
+        self._gate = FrameGate(
+            TrackCheck(f"device time {time_field}",
+                       2.0 ** self.clock.bits if self.clock.bits else None,
+                       exact=whole(self._time_index))
+            if self.clock is not None else None,
+            TrackCheck(f"counter {counter_field}", 2.0 ** self.counter.bits, integer=True,
+                       exact=True)
+            if self.counter is not None else None)
+        self._held: tuple[np.ndarray, list[bytes]] | None = None
         special = {self._time_index, self._counter_index}
         self._channel_fields = [f"f{i}" for i in range(len(items)) if i not in special]
         if not self._channel_fields:
@@ -233,17 +249,31 @@ class BinaryDecoder:
             for frame in frames:
                 if len(frame) != size:
                     self.bad.add(frame, f"{len(frame)} bytes, expected {size}")
-        if not good:
+        if not good and self._held is None:
             return None
         rows = np.frombuffer(b"".join(good), dtype=np.uint8).reshape(len(good), size)
-        if self.crc is not None:
+        if self.crc is not None and good:
             ok = self._check_rows(good, rows)
             if not ok.all():
                 for i in np.flatnonzero(~ok):
                     self.bad.add(good[i], "checksum mismatch")
                 rows = rows[ok]
-                if rows.shape[0] == 0:
-                    return None
+                good = [good[i] for i in np.flatnonzero(ok)]
+        return self._rows_block(rows, good, t_host, final=False)
+
+    def flush(self, t_host: float = 0.0) -> Block | None:
+        """End of the stream: a frame held for the next frame's verdict is decided without it."""
+        if self._held is None:
+            return None
+        return self._rows_block(np.empty((0, self.frame_size), dtype=np.uint8), [], t_host,
+                                final=True)
+
+    def _rows_block(self, rows: np.ndarray, frames: list[bytes], t_host: float,
+                    final: bool) -> Block | None:
+        if self._gate:
+            rows, frames = self._gated(rows, frames, final)
+        if rows.shape[0] == 0:
+            return None
         records = rows.view(self._dtype).reshape(-1)
         n = records.shape[0]
         values = np.empty((n, len(self._channel_fields)), dtype=np.float64)
@@ -256,6 +286,32 @@ class BinaryDecoder:
             counter = self.counter.unwrap(records[f"f{self._counter_index}"])
         return Block(t_host=np.full(n, float(t_host)), values=values, t_dev=t_dev,
                      counter=counter)
+
+    def _gated(self, rows: np.ndarray, frames: list[bytes], final: bool
+               ) -> tuple[np.ndarray, list[bytes]]:
+        """The frames whose time and counter are on track (monitor.trackcheck); a frame
+        that left the track as the last of the read is held for the next read."""
+        if self._held is not None:
+            held_rows, held_frames = self._held
+            self._held = None
+            rows = np.vstack([held_rows, rows])
+            frames = held_frames + frames
+        if rows.shape[0] == 0:
+            return rows, frames
+        records = rows.view(self._dtype).reshape(-1)
+
+        def column(index: int | None) -> np.ndarray | None:
+            return None if index is None else records[f"f{index}"].astype(np.float64)
+
+        verdict = self._gate.sort(column(self._time_index), column(self._counter_index), final)
+        for index, reason in verdict.bad:
+            self.bad.add(frames[index], reason)
+        if verdict.hold_from < rows.shape[0]:
+            cut = verdict.hold_from
+            self._held = (rows[cut:].copy(), frames[cut:])
+        elif verdict.keep.all():
+            return rows, frames                  # the common case: no list to build
+        return rows[verdict.keep], [f for f, k in zip(frames, verdict.keep, strict=True) if k]
 
     def _check_rows(self, frames: list[bytes], rows: np.ndarray) -> np.ndarray:
         """(n,) bool: which frames carry the CRC of their payload."""

@@ -10,6 +10,11 @@ like one inside a block.
 
 A step of at least half the wrap modulus is read as a jump backwards (a board
 reset), not as a long forward step: serial number arithmetic, RFC 1982.
+
+Both trust the values they are given: the decoders first pass each value
+through monitor.trackcheck, so a NaN, an impossible counter or a one-frame jump
+is one bad frame there and never reaches these unwrappers. A NaN given to
+DeviceClock.unwrap directly comes out as NaN without touching its state.
 """
 
 from __future__ import annotations
@@ -77,6 +82,11 @@ class DeviceClock:
         raw = np.asarray(raw, dtype=np.float64).reshape(-1)
         if raw.size == 0:
             return raw.copy()
+        finite = np.isfinite(raw)
+        if not finite.all():               # NaN out for NaN in; the time base stays whole
+            out = np.full(raw.size, np.nan)
+            out[finite] = self.unwrap(raw[finite])
+            return out
         first = self._last_raw is None
         if first:
             previous = raw[0]

@@ -53,6 +53,7 @@ class FramedSource:
         self._last_read: float | None = None
         self._last_t = -np.inf
         self._held_gaps: list[str] = []      # came after the rows of the last block
+        self._ended = False                  # the end of the stream was handled
         self._ready_gaps: list[str] = []
 
     @property
@@ -86,22 +87,47 @@ class FramedSource:
             data = b"".join(parts) if len(parts) > 1 else data
         now = time.monotonic()
         frames = self.framer.feed(data) if data else []
-        if self.byte_source.state == "ended" and hasattr(self.framer, "flush"):
-            frames += self.framer.flush()
+        self._offer_cut(now)
+        final = self.byte_source.state == "ended" and not self._ended
+        if final:
+            self._ended = True
+            if getattr(self.byte_source, "is_stdin", False) and hasattr(self.framer, "flush"):
+                frames += self.framer.flush()     # a file's last line needs no line end
+            elif hasattr(self.framer, "restart"):
+                self.framer.restart()             # a link's unfinished line was cut off
         block = self.decoder.decode(frames, now) if frames else None
+        if final and hasattr(self.decoder, "flush"):
+            block = _joined(block, self.decoder.flush(now))
         self._collect_bad()
         if frames:
             # Every line is a sample period, a corrupted one too: count frames, not samples.
             self._arrival.add(now, max(len(block) if block is not None else 0, len(frames)))
-        gaps = self.byte_source.take_gaps()
-        if gaps:
-            self._arrival.restart()           # after this read's samples: they came before
+        gaps = self._source_gaps()
         if block is None or len(block) == 0:
             self._ready_gaps += gaps
             return None
         self._held_gaps += gaps
         n = len(block)
         return Block(self._timestamps(now, n), block.values, block.t_dev, block.counter)
+
+    def _offer_cut(self, now: float) -> None:
+        """Hand the framer's cut line (the bytes before the first line end after connect)
+        to a decoder that judges it; others drop it."""
+        take = getattr(self.framer, "take_cut", None)
+        cut = take() if take is not None else None
+        if cut is not None and hasattr(self.decoder, "offer_cut"):
+            self.decoder.offer_cut(cut, now)
+
+    def _source_gaps(self) -> list[str]:
+        """The byte source's gaps; after a link dropped the framer starts afresh (after
+        this read's bytes, which came before the drop)."""
+        gaps = self.byte_source.take_gaps()
+        if gaps:
+            self._arrival.restart()
+            if (not getattr(self.byte_source, "is_stdin", False)
+                    and self.byte_source.state != "ended" and hasattr(self.framer, "restart")):
+                self.framer.restart()
+        return gaps
 
     def _timestamps(self, now: float, n: int) -> np.ndarray:
         steps = np.arange(n, dtype=np.float64)
@@ -162,10 +188,7 @@ class FramedSource:
         """Source gaps (vanish, reconnect, end of input) and decoder gaps, oldest first."""
         gaps, self._ready_gaps = self._ready_gaps, []
         if not self._held_gaps:               # nothing held: anything new is in order
-            fresh = self.byte_source.take_gaps()
-            if fresh:
-                self._arrival.restart()
-            gaps += fresh
+            gaps += self._source_gaps()
         decoder_gaps = getattr(self.decoder, "take_gaps", None)   # dropped frames, clock resets
         return gaps + decoder_gaps() if decoder_gaps else gaps
 
@@ -176,11 +199,27 @@ class FramedSource:
         self.byte_source.close()
 
 
+def _joined(first: Block | None, second: Block | None) -> Block | None:
+    """Two blocks of one read, in order, as one (either may be None)."""
+    if first is None or len(first) == 0:
+        return second
+    if second is None or len(second) == 0:
+        return first
+
+    def cat(a: np.ndarray | None, b: np.ndarray | None) -> np.ndarray | None:
+        return None if a is None or b is None else np.concatenate([a, b])
+
+    return Block(np.concatenate([first.t_host, second.t_host]),
+                 np.vstack([first.values, second.values]),
+                 cat(first.t_dev, second.t_dev), cat(first.counter, second.counter))
+
+
 def text_source(byte_source: Any, *, channels: tuple[str, ...] | None = None,
                 time_column: str | None = None, counter_column: str | None = None,
                 declared_rate: float | None = None, clock: Any = None,
                 sequence: Any = None) -> FramedSource:
-    """A FramedSource with the text framer and decoder (stdin keeps its first line).
+    """A FramedSource with the text framer and decoder (stdin keeps its first line; any
+    other source's first bytes before a line end go to the decoder as a cut line).
 
     clock / sequence: monitor.devicetime unwrappers for the time and counter columns.
     """

@@ -3,9 +3,15 @@
 Rules (DESIGN.md, issue 2):
 - LF, CRLF and CR all end a line; a CR at the end of one chunk followed by an
   LF at the start of the next is one terminator, not an extra empty line.
-- Everything before the first terminator after connect is a partial line and
-  is dropped (the board was mid-line when we opened the port). Replay of a
-  file or stdin keeps it with `drop_partial_first=False`.
+- Everything before the first terminator after connect may be the tail of a
+  line the board was in the middle of when the port opened. It is not among the
+  lines `feed` returns: `take_cut()` hands it to the decoder, which keeps it when
+  it is whole (a header, or a row of the stream's width; monitor.text_header).
+  A caller that never asks drops it. Replay of a file or stdin, where nothing
+  can be cut, keeps it as a line with `drop_partial_first=False`.
+- `restart()` after the link dropped and came back: the unfinished line from
+  before is cut off (one bad frame) and the bytes before the next terminator
+  are a cut again.
 - A line longer than `max_line` bytes is discarded, counted in `overlong` and
   in `bad`, and so is the rest of it up to its terminator.
 - Blank (empty or whitespace-only) lines are ignored.
@@ -29,7 +35,8 @@ class TextFramer:
     """Incremental line splitter for text streams.
 
     max_line:           longest accepted line in bytes (terminator excluded), >= 1.
-    drop_partial_first: drop everything before the first line terminator.
+    drop_partial_first: keep everything before the first line terminator apart, for
+                        take_cut(), instead of returning it as a line.
     feed(data) -> list of complete, non-blank lines (bytes, terminators removed).
     """
 
@@ -43,7 +50,9 @@ class TextFramer:
         self._buf = b""                     # the incomplete line so far
         self._after_cr = False              # last chunk ended with CR
         self._discarding = False            # inside an overlong line, waiting for its end
+        self._discarding_first = False      # ... and that line is the cut first one
         self._first_pending = drop_partial_first
+        self._cut: bytes | None = None      # the bytes before the first terminator
 
     def feed(self, data: bytes) -> list[bytes]:
         """Add received bytes; return the lines they complete, oldest first."""
@@ -68,8 +77,11 @@ class TextFramer:
         else:
             parts[0] = self._buf + parts[0]
         if self._first_pending:
-            parts[0] = b""                  # the partial line we joined in the middle of
+            if not self._discarding_first and len(parts[0]) <= self.max_line:
+                self._cut = parts[0]        # maybe the tail of a line we joined mid-way
+            parts[0] = b""
             self._first_pending = False
+            self._discarding_first = False
         self._buf = b""
         self._extend(tail)
         lines = list(filter(None, parts))
@@ -87,6 +99,24 @@ class TextFramer:
             return []
         return [line]
 
+    def take_cut(self) -> bytes | None:
+        """The bytes before the first line end after open or restart(), once (None when
+        they have not ended yet, were over max_line, or were already taken)."""
+        cut, self._cut = self._cut, None
+        return cut
+
+    def restart(self) -> None:
+        """The link dropped and will come back: an unfinished line is cut off (counted
+        bad), and the bytes before the next line end are a cut line again."""
+        if self._buf and not self._first_pending and not self._buf.isspace():
+            self.bad.add(self._buf, "line cut off when the link dropped")
+        self._buf = b""
+        self._after_cr = False
+        self._discarding = False
+        self._discarding_first = False
+        self._first_pending = True
+        self._cut = None
+
     def _extend(self, tail: bytes) -> None:
         if self._discarding:
             return
@@ -94,6 +124,8 @@ class TextFramer:
         if len(self._buf) > self.max_line:
             if not self._first_pending:
                 self._count_overlong(self._buf)
+            else:
+                self._discarding_first = True
             self._buf = b""
             self._discarding = True
 

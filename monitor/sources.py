@@ -125,7 +125,18 @@ class SerialSource(ByteSource):
         kwargs = {"baudrate": self.baud, "timeout": 0}
         if self._is_device_path() and os.name == "posix":
             kwargs["exclusive"] = True      # flock: a second opener is told the port is busy
-        return serial.serial_for_url(self.url, **kwargs)
+        if not self.url.startswith("socket://"):
+            return serial.serial_for_url(self.url, **kwargs)
+        # pyserial's socket handler discards whatever arrived while it connected (its
+        # open() ends with reset_input_buffer()). On a fresh TCP connection that is the
+        # board's first line, often its header: keep it.
+        port = serial.serial_for_url(self.url, do_not_open=True, **kwargs)
+        port.reset_input_buffer = lambda: None
+        try:
+            port.open()
+        finally:
+            del port.reset_input_buffer
+        return port
 
     def open(self) -> None:
         if not isinstance(self.baud, int) or isinstance(self.baud, bool) or self.baud <= 0:
