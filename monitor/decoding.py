@@ -52,6 +52,11 @@ from monitor.text_header import parse_header_field as parse_header_field  # re-e
 from monitor.trackcheck import FrameGate, TrackCheck
 from replay.timecolumn import find_time_column, match_override, time_scale_of
 
+# Bytes numpy.loadtxt (reading latin-1) takes for whitespace but float() does not: a read
+# holding any goes to the line-by-line check, so a line's verdict never depends on the
+# other lines that arrived with it.
+_LOADTXT_ONLY_SPACE = bytes([0x1C, 0x1D, 0x1E, 0x1F, 0x85, 0xA0])
+
 
 def _utf8(line: bytes) -> bool:
     try:
@@ -323,6 +328,9 @@ class TextDecoder:
         numpy.loadtxt's C parser checks that every row has the same width and every
         field is a number (it refuses 1_000, empty fields and non-ASCII bytes).
         """
+        joined = b"".join(frames)
+        if len(joined.translate(None, _LOADTXT_ONLY_SPACE)) != len(joined):
+            return None         # the checked path's float() judges these lines alike
         try:
             table = np.loadtxt(frames, dtype=np.float64, delimiter=self.layout.delim_text,
                                comments=None, ndmin=2)

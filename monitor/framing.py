@@ -86,7 +86,8 @@ class TextFramer:
         self._extend(tail)
         lines = list(filter(None, parts))
         if _BLANK.search(data) or parts[0].isspace():   # rare: only then look at every line
-            lines = [p for p in lines if not p.isspace()]
+            # an overlong line is overlong even when blank, as when it arrives split
+            lines = [p for p in lines if not p.isspace() or len(p) > self.max_line]
         if lines and (len(data) > self.max_line or len(parts[0]) > self.max_line) \
                 and max(map(len, lines)) > self.max_line:
             lines = self._without_overlong(lines)

@@ -524,8 +524,8 @@ HEADER = b"load[kg],current[A],vib[g]"
 MAX_LINE = 128
 LINE_END = re.compile(rb"\r\n|\r|\n")
 # Bytes that numpy.loadtxt takes for whitespace inside a field but Python's float() of
-# bytes does not: the decoder's verdict on a line holding one depends on the batch it
-# arrives in (see the xfail test below), so generated junk carries '?' instead.
+# bytes does not: the model here (reads_as_row) follows float(), so generated junk carries
+# '?' instead; the decoder's one verdict on such lines is tested on its own below.
 _LOADTXT_ONLY_SPACE = bytes([0x1C, 0x1D, 0x1E, 0x1F, 0x85, 0xA0])
 _NEUTRAL = bytes.maketrans(_LOADTXT_ONLY_SPACE, b"?" * len(_LOADTXT_ONLY_SPACE))
 
@@ -626,13 +626,10 @@ def test_text_stream_keeps_every_whole_good_line_and_counts_every_bad_one(draws,
     rows, kept, bad = [], [], 0
     for start, end in spans(data, LINE_END):
         line = data[start:end]
-        if not line or line.isspace():
-            # a whitespace-only line over max_line is counted or not by how it was read
-            # (see the xfail test below): such examples are skipped
-            assume(len(line) <= max_line)
-            continue
         if len(line) > max_line:
-            bad += 1                                      # framer: over-long
+            bad += 1                                      # framer: over-long, blank or not
+        elif not line or line.isspace():
+            continue                                      # idle blank line
         elif line.strip() == HEADER:
             continue                                      # the board re-sent its header
         elif (row := reads_as_row(line)) is None:
@@ -652,10 +649,8 @@ def test_text_stream_keeps_every_whole_good_line_and_counts_every_bad_one(draws,
             assert offset > 0 and data[offset - 1] not in b"\r\n"
 
 
-@pytest.mark.xfail(strict=True, reason="monitor/decoding.py: numpy.loadtxt (fast path) reads "
-                   "bytes as latin-1 and takes 0x1C-0x1F, 0x85 and 0xA0 for whitespace, "
-                   "float() (checked path) does not, so such a line is a row or a bad frame "
-                   "depending on the other lines of its read")
+# numpy.loadtxt (the fast path) reads bytes as latin-1 and takes 0x1C-0x1F, 0x85 and 0xA0
+# for whitespace, float() (the checked path) does not: such a line must get one verdict.
 @pytest.mark.parametrize("junk", [b"\xa01.5,2.0,3.0", b"1.5\x1c,2.0,3.0", b"1.5,2.0,3.0\x85"])
 def test_a_line_is_judged_the_same_whatever_else_arrived_with_it(junk):
     verdicts = []
@@ -666,9 +661,7 @@ def test_a_line_is_judged_the_same_whatever_else_arrived_with_it(junk):
     assert verdicts[0] == verdicts[1]
 
 
-@pytest.mark.xfail(strict=True, reason="monitor/framing.py: a whitespace-only line over "
-                   "max_line is ignored as blank when it arrives in one read but counted as "
-                   "overlong when the buffer passes max_line before its end arrives")
+# a whitespace-only line over max_line is overlong whether it arrives in one read or two
 def test_an_overlong_blank_line_is_counted_alike_in_one_read_or_two():
     line = b"1,2,3\n" + b" " * 200 + b"\n4,5,6\n"
     counts = []
