@@ -82,8 +82,9 @@ def add_source_options(parser: argparse.ArgumentParser) -> None:
                         help="column (or binary field) holding the sample counter; gaps "
                              "count as dropped")
     parser.add_argument("--channels", type=channel_list, metavar="NAMES",
-                        help="column names for a stream without a header line, comma "
-                             "separated (default ch0,ch1,...)")
+                        help="column names, comma separated; they win over the board's "
+                             "header line, whose units are kept (default: the header's "
+                             "names, else ch0,ch1,...)")
     add_binary_options(parser)
     parser.add_argument("--ring-seconds", type=positive_float, default=DEFAULT_RING_SECONDS,
                         metavar="S",

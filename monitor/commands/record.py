@@ -48,7 +48,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--counter-column", metavar="NAME",
                         help="column holding the sample counter; gaps count as dropped")
     parser.add_argument("--channels", type=channel_list, metavar="NAMES",
-                        help="column names for a stream without a header line (a,b,c)")
+                        help="column names (a,b,c); they win over the board's header "
+                             "line, whose units are kept")
     add_binary_options(parser)
 
 
