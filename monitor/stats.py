@@ -61,9 +61,13 @@ class ChannelStats:
     white_reduction_db: float = 0.0
 
 
-def noise_reduction_db(noise_raw: float, noise_filtered: float) -> float:
-    """20 log10(raw / filtered); inf when the filter removes all noise, 0 when there is none."""
-    return reduction_db(noise_raw, noise_filtered)
+noise_reduction_db = reduction_db      # 20 log10(raw / filtered), inf/0/NaN at the edges
+
+
+def format_db(value: float) -> str:
+    """A reduction in dB with one decimal; "-" when nothing was measured (NaN), "inf" when
+    the filter removed all the noise."""
+    return "-" if value != value else f"{value:.1f}"
 
 
 _model_cache: dict[str, Any] = {"chain": None, "models": []}

@@ -116,14 +116,13 @@ def run(args: argparse.Namespace) -> int:
           f"({result.rate_origin}), {result.gaps} gaps, {result.bytes_written} bytes, "
           f"{result.seconds:.1f} s" + (f"; {', '.join(notes)}" if notes else ""))
     if result.reduction_db:
+        from monitor.stats import format_db
+
         units = recording.schema.units
         labels = [f"{n}[{units[k]}]" if k < len(units) and units[k] else n
                   for k, n in enumerate(result.channels)]
         print("noise reduction, measured on this recording / of white noise: " + ", ".join(
-            f"{label} {_db(db)}/{white:.1f} dB" for label, db, white in
+            f"{label} {format_db(db)}/{white:.1f} dB" for label, db, white in
             zip(labels, result.reduction_db, result.white_reduction_db, strict=True)))
     return 0
 
-
-def _db(value: float) -> str:
-    return "-" if value != value else f"{value:.1f}"            # NaN: nothing to measure

@@ -76,7 +76,7 @@ def run_plain(pipeline: Any, duration: float | None, out: TextIO | None = None,
                     break
                 if now >= next_line:
                     total = status.samples_total
-                    stats = _newest_stats(pipeline, total - shown_total)
+                    stats = _newest_stats(pipeline, total - shown_total, status.chain_since)
                     line = stats_line(now - started, status, pipeline, stats, plus_minus)
                     if not print_safely(line, out):
                         break                   # the terminal hung up or the pipe closed
@@ -155,7 +155,7 @@ def _channel_labels(pipeline: Any, count: int) -> list[str]:
     return labels
 
 
-def _newest_stats(pipeline: Any, new_samples: int) -> list[Any]:
+def _newest_stats(pipeline: Any, new_samples: int, chain_since: int) -> list[Any]:
     """Stats of the last STATS_WINDOW_S of samples (sample time, so any replay speed gives
     the same figures), or [] when no sample arrived since the last line."""
     from monitor.stats import ring_stats
@@ -165,8 +165,7 @@ def _newest_stats(pipeline: Any, new_samples: int) -> list[Any]:
         return []
     rate = pipeline.rate()
     window = int(STATS_WINDOW_S * rate[0]) if rate else new_samples
-    return ring_stats(ring, max(1, min(window, ring.capacity)), pipeline.chain,
-                      pipeline.status().chain_since)
+    return ring_stats(ring, max(1, min(window, ring.capacity)), pipeline.chain, chain_since)
 
 
 def stats_line(elapsed: float, status: Any, pipeline: Any, stats: list[Any],
@@ -188,7 +187,10 @@ def stats_line(elapsed: float, status: Any, pipeline: Any, stats: list[Any],
 
 
 def _db(value: float) -> str:
-    return "-" if value != value else f"{value:.1f} dB"        # NaN: nothing measured yet
+    from monitor.stats import format_db
+
+    text = format_db(value)
+    return text if text == "-" else f"{text} dB"
 
 
 def summary_line(elapsed: float, status: Any, pipeline: Any, figures: Any) -> str:
@@ -201,10 +203,12 @@ def summary_line(elapsed: float, status: Any, pipeline: Any, figures: Any) -> st
     per_s = status.frames / elapsed if elapsed > 0 else 0.0
     text = (f"summary: {elapsed:.1f} s  {status.frames} frames ({per_s:.1f}/s)  bad "
             f"{status.bad}  dropped {status.dropped}  gaps {status.gaps}  {rate_text(status)}")
+    from monitor.stats import format_db
+
     if figures is not None and figures.samples:
         labels = _channel_labels(pipeline, len(figures.reduction_db))
         text += "  noise reduction measured/white " + ", ".join(
-            f"{label} {_db(db).removesuffix(' dB')}/{white:.1f} dB" for label, db, white
+            f"{label} {format_db(db)}/{white:.1f} dB" for label, db, white
             in zip(labels, figures.reduction_db, figures.white_reduction_db, strict=True))
     if status.last_bad_reason:
         text += f"  (last bad frame: {status.last_bad_reason})"

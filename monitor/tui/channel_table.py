@@ -8,6 +8,8 @@ from dataclasses import dataclass
 
 from textual.widgets import DataTable
 
+from monitor.stats import format_db
+
 COLUMNS: tuple[tuple[str, str, int], ...] = (
     ("channel", "channel", 12), ("unit", "unit", 5), ("last", "last", 11), ("mean", "mean", 11),
     ("rms_raw", "RMS raw", 10), ("rms_filtered", "RMS filt", 10), ("reduction_db", "NR dB", 7),
@@ -52,14 +54,10 @@ def row_cells(row: ChannelRow) -> tuple[str, ...]:
     return (
         row.name, row.unit or "-", _number(row.last), _number(row.mean),
         _number(row.rms_raw, 4), _number(row.rms_filtered, 4),
-        _db(row.reduction_db), _db(row.white_db),
+        format_db(row.reduction_db), format_db(row.white_db),
         "-" if not math.isfinite(row.lag_ms) else f"{row.lag_ms:.1f}",
         _number(row.rate_hz, 4),
     )
-
-
-def _db(value: float) -> str:
-    return "-" if math.isnan(value) else f"{value:.1f}"       # inf: all removed
 
 
 class ChannelTable(DataTable):
