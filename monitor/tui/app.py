@@ -31,9 +31,10 @@ from monitor.tui.channel_table import ChannelRow, ChannelTable
 from monitor.tui.dialogs import ShowText
 from monitor.tui.file_actions import FileActions
 from monitor.tui.help_screen import HelpScreen
+from monitor.tui.keyorder import KeyOrder, binding_map
 from monitor.tui.keys import ACTIONS, CHANNEL_KEYS
 from monitor.tui.palette import SessionCommands
-from monitor.tui.param_form import FormTarget, ParamForm
+from monitor.tui.param_form import FOCUS_MARK, FormTarget, ParamForm
 from monitor.tui.plot_actions import NO_DISPLAY, PlotActions
 from monitor.tui.session import ChainSession
 from monitor.tui.status_bar import StatusBar, UiState
@@ -53,7 +54,7 @@ def _bindings() -> list[Binding]:
     return bindings
 
 
-class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
+class TunetraceApp(KeyOrder, ChainActions, FileActions, PlotActions, App[int]):
     """The live session on one pipeline; `args` are the CLI options of live/demo/replay."""
 
     TITLE = "tunetrace"
@@ -61,9 +62,11 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
     Screen { layout: vertical; background: #10151c; }
     #middle { height: 1fr; }
     #side { width: 45%; min-width: 44; max-width: 64; }
+    #channels.has-focus, #stages.has-focus, #form.has-focus { border: heavy #ffb347; }
     """
     BINDINGS = _bindings()
-    COMMANDS = App.COMMANDS | {SessionCommands}
+    COMMANDS = {SessionCommands}      # our actions once; textual's own entries would repeat them
+    app_keys = binding_map(BINDINGS)      # delivered in typing order (monitor.tui.keyorder)
 
     def __init__(self, pipeline: Any, args: argparse.Namespace) -> None:
         super().__init__()
@@ -84,6 +87,7 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
         self._view_held = False
         self._pipeline_notice: str | None = None
         self._refresh_timers: list[Any] = []
+        self._field_wanted: int | None = None     # stage whose first field gets the focus
         self.table: ChannelTable | None = None
         self.trace: TraceView | None = None
         self.status_bar: StatusBar | None = None
@@ -142,9 +146,12 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
         unit = self.pipeline.schema.unit(c) if self.pipeline.schema else ""
         caption = f"{self.channel} [{unit}]  last {self.ui.window_s:g} s" if unit else (
             f"{self.channel}  last {self.ui.window_s:g} s")
-        span = float(snapshot.t_host[-1] - snapshot.t_host[0])
-        self.trace.show(snapshot.raw[:, c], snapshot.filtered[:, c],
-                                                 span, caption)
+        # the trace draws samples evenly spaced, so its axis is their count over the rate
+        # (host arrival times bunch up after a stall and would stretch it)
+        rate = self.pipeline.rate()
+        span = (len(snapshot) - 1) / rate[0] if rate else float(
+            snapshot.t_host[-1] - snapshot.t_host[0])
+        self.trace.show(snapshot.raw[:, c], snapshot.filtered[:, c], span, caption)
 
     def refresh_table(self) -> None:
         """2 Hz: the channel table and the status lines."""
@@ -234,13 +241,99 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
             return None
         others = sharers(self.session.spec, index, self.channel, self.session.channels)
         return FormTarget(index, self.session.spec.stages[index], rate, others,
-                          self.ui.analysis_hz)
+                          self.ui.analysis_hz, self.channel, self.session.position(index,
+                                                                                   self.channel))
 
     async def _show_form(self) -> None:
         form = self.query_one("#form", ParamForm)
         target = self.form_target()
         if target != form.target or target is None:
             await form.show(target)
+        self._mark_focus()
+        if self._field_wanted is not None and target is not None \
+                and target.index == self._field_wanted:
+            self._field_wanted = None
+            first = form.first_field()
+            if first is not None:
+                first.focus()
+
+    # -- the key path: enter goes in, esc comes back, tab goes round ---------------------------
+
+    async def navigate(self, key: str) -> bool:
+        """Enter on the table -> the chain; Enter on a stage -> its first field; Enter in a
+        field applies; Esc goes back one level. Runs in typing order (monitor.tui.keyorder)."""
+        focused = self.focused
+        form = self.query_one("#form", ParamForm)
+        stages = self.query_one("#stages", StageList)
+        in_form = focused is not None and form in focused.ancestors
+        if key == "enter":
+            if focused is self.table:
+                stages.focus()
+                if not stages.indices:
+                    self.say(f"{self.channel} has no stage yet: a adds one")
+                return True
+            if focused is stages:
+                self.enter_stage()
+                return True
+            if in_form and form.is_text_field(focused):
+                form.submit()
+                return True
+            return False
+        if key == "escape":
+            if in_form and not form.is_text_field(focused) and not form.is_choice(focused):
+                return False                     # an open choice list closes itself
+            if in_form:
+                stages.focus()
+            elif focused is stages:
+                self.table.focus()
+            elif focused is self.table:
+                self.say("already at the channel table (q quits)")
+            else:
+                self.table.focus()
+            return True
+        return False
+
+    def enter_stage(self, index: int | None = None) -> None:
+        """Focus the first parameter field of stage `index` (default: the highlighted one);
+        keys typed meanwhile wait for it."""
+        stages = self.query_one("#stages", StageList)
+        index = stages.selected_index if index is None else index
+        if index is None:
+            self.say(f"{self.channel} has no stage yet: a adds one")
+            return
+        form = self.query_one("#form", ParamForm)
+        self._field_wanted = index
+        self.hold_keys(lambda: self._field_wanted is None or (
+            form.first_field() is not None and self.focused is form.first_field()))
+        self.call_later(self._show_form)
+
+    def on_descendant_focus(self, event: Any) -> None:
+        self._mark_focus()
+
+    def on_descendant_blur(self, event: Any) -> None:
+        self.call_after_refresh(self._mark_focus)
+
+    def _mark_focus(self) -> None:
+        """Say where the focus is: a marker on the panel and the field, and in the status."""
+        focused = self.focused
+        form = self.query_one("#form", ParamForm)
+        stages = self.query_one("#stages", StageList)
+        for panel in (self.table, stages, form):
+            inside = focused is not None and (focused is panel or panel in focused.ancestors)
+            panel.set_class(inside, "has-focus")
+            title = str(panel.border_title or "").removeprefix(FOCUS_MARK)
+            panel.border_title = FOCUS_MARK + title if inside else title
+        if focused is self.table:
+            where = "channel table (enter: chain)"
+        elif focused is stages:
+            where = "stage list (enter: fields)"
+        elif focused is not None and form in focused.ancestors:
+            where = f"field {form.field_name(focused)} (enter applies, esc back)"
+        else:
+            where = ""
+        self.ui.focus = where
+        if self.status_bar is not None and self.status_bar.is_mounted:
+            self.status_bar.show(self._last_status, self.ui)
 
     def on_option_list_option_highlighted(self, event: OptionList.OptionHighlighted) -> None:
         if event.option_list.id == "stages":
@@ -255,21 +348,27 @@ class TunetraceApp(ChainActions, FileActions, PlotActions, App[int]):
     # -- applying a chain --------------------------------------------------------------------
 
     def apply_spec(self, spec: Any, highlight: int | None = None,
-                   form: ParamForm | None = None) -> bool:
-        """Build the chain for `spec` and submit it; on refusal say why and change nothing."""
+                   form: ParamForm | None = None, what: str = "") -> bool:
+        """Build the chain for `spec` and submit it; on refusal say why and change nothing.
+
+        what: the edit in words; it is said (with how to undo it) and can be undone.
+        """
         try:
-            self.session.apply(spec)
+            self.session.apply(spec, what)
         except ValueError as exc:
             if form is not None:
                 form.refuse(str(exc))
             self.say(f"refused: {exc}")
             return False
         self.show_chain(highlight)
+        if what:
+            self.say(f"{what} (u undoes)")
         return True
 
     def say(self, message: str) -> None:
-        """Show one sentence in the status line (it stays until the next message)."""
+        """Show one sentence in the status line; it clears after NOTICE_S or at the next one."""
         self.ui.notice = message
+        self.ui.notice_at = time.monotonic()
         if self.status_bar is not None and self.status_bar.is_mounted:
             self.status_bar.show(self._last_status, self.ui)
 

@@ -145,10 +145,7 @@ class FileActions:
         except ValueError as exc:
             self.say(f"{path}: {exc}; the running chain goes on")
             return False
-        if self.apply_spec(spec):
-            self.say(f"chain loaded from {path}")
-            return True
-        return False
+        return self.apply_spec(spec, what=f"loaded the chain from {path}")
 
     # -- values asked for --------------------------------------------------------------------
 

@@ -60,8 +60,9 @@ ACTIONS: tuple[KeyAction, ...] = (
               "Show the latest rejected frame and why it was rejected.", VIEW),
     KeyAction("o", "open_plot", "plot window",
               "Open the plot window (needs a display).", VIEW),
-    KeyAction("escape", "focus_table", "to table",
-              "Leave a field or list and go back to the channel table.", VIEW),
+    KeyAction("escape", "focus_table", "back",
+              "Go back one level: from a field to the stage list, from the stage list to the "
+              "channel table; in a dialog, cancel it.", VIEW),
     KeyAction("a", "add_stage", "add stage",
               "Add a stage after the highlighted one (pick its kind from a list).", CHAIN, True),
     KeyAction("d,delete", "remove_stage", "remove", "Remove the highlighted stage.", CHAIN, True),
@@ -78,6 +79,11 @@ ACTIONS: tuple[KeyAction, ...] = (
               "or to every channel a shared stage runs on.", CHAIN),
     KeyAction("z", "reset_filters", "reset state",
               "Reset the state of every filter (they restart by their start policy).", CHAIN),
+    KeyAction("u", "undo_edit", "undo",
+              "Take back the latest chain edit (add, remove, move, retune, bypass, method, "
+              "copy, load); again for the one before.", CHAIN, True),
+    KeyAction("U", "redo_edit", "redo", "Make again the edit the latest undo took back.",
+              CHAIN),
     KeyAction("c", "copy_chain", "copy chain",
               "Copy this channel's chain to other channels.", CHAIN),
     KeyAction("r", "toggle_recording", "record",

@@ -79,13 +79,26 @@ def field_for_message(kind: str, message: str) -> str | None:
 
 @dataclass(frozen=True)
 class FormTarget:
-    """What the form edits: file `index` of `stage`, designed at `rate_hz`."""
+    """What the form edits: file `index` of `stage`, designed at `rate_hz`.
+
+    position: the stage's place on `channel` (1 = runs first), the number the user sees.
+    """
 
     index: int
     stage: StageSpec
     rate_hz: float
     sharers: tuple[str, ...]
     analysis_hz: float
+    channel: str = ""
+    position: int = 0
+
+    @property
+    def title(self) -> str:
+        where = f" of {self.channel}" if self.channel else ""
+        return f"stage {self.position or self.index + 1}{where}: {self.stage.kind}"
+
+
+FOCUS_MARK = "\u25b6 "          # in front of the focused field's name (and panel titles)
 
 
 class FieldRow(Horizontal):
@@ -96,14 +109,30 @@ class FieldRow(Horizontal):
     FieldRow > Label { width: 16; padding: 0 1 0 0; }
     FieldRow > Input, FieldRow > Select { width: 20; }
     FieldRow > .field-error { width: 1fr; color: #ff8080; padding: 0 0 0 1; }
+    FieldRow:focus-within > Label { color: #ffb347; text-style: bold; }
+    FieldRow:focus-within > Input { background: #2e3d52; }
     """
 
+    def __init__(self, key: str, *children: Any) -> None:
+        super().__init__(Label(f"  {key}"), *children)
+        self.key = key
 
-class ParamForm(VerticalScroll):
-    """Fields of one stage; `show(target)` rebuilds them, `Apply` carries accepted edits."""
+    def on_descendant_focus(self) -> None:
+        self.children[0].update(f"{FOCUS_MARK}{self.key}")
+
+    def on_descendant_blur(self) -> None:
+        self.children[0].update(f"  {self.key}")
+
+
+class ParamForm(VerticalScroll, can_focus=False):
+    """Fields of one stage; `show(target)` rebuilds them, `Apply` carries accepted edits.
+
+    Not a Tab stop itself: Tab goes from the stage list straight to the fields.
+    """
 
     DEFAULT_CSS = """
     ParamForm { height: 1fr; border: round #3a4a5c; }
+    ParamForm.has-focus { border: heavy #ffb347; }
     ParamForm #form-head { color: #8a96a3; }
     ParamForm #form-fields { height: auto; }
     ParamForm #form-derived { color: #a8d8a8; margin-top: 1; }
@@ -134,6 +163,11 @@ class ParamForm(VerticalScroll):
 
     async def show(self, target: FormTarget | None) -> None:
         """Rebuild the fields for `target` (None: no stage highlighted)."""
+        if (target is not None and self.target is not None and self._fields
+                and target.index == self.target.index and target.stage == self.target.stage):
+            self.accepted(target)       # same stage (rate or lag frequency moved): keep the text
+            self.preview()
+            return
         self.target = None              # no previews while the fields are rebuilt
         self._fields = {}
         fields = self.query_one("#form-fields", Vertical)
@@ -146,7 +180,7 @@ class ParamForm(VerticalScroll):
             self.query_one("#form-warnings", Static).update("")
             return
         stage = target.stage
-        self.border_title = f"stage {target.index + 1}: {stage.kind}"
+        self.border_title = target.title
         self.query_one("#form-head", Static).update(self._head(target))
         rows = [self._row(stage, key) for key in field_keys(stage.kind)]
         await fields.mount_all(rows)
@@ -179,8 +213,7 @@ class ParamForm(VerticalScroll):
             widget = Input(value=format_value(current), validators=[validator], valid_empty=True,
                            id=f"field-{key}", compact=True, placeholder="-",
                            validate_on=["changed", "submitted"])
-        return FieldRow(Label(key), widget, Static("", classes="field-error",
-                                                   id=f"error-{key}"))
+        return FieldRow(key, widget, Static("", classes="field-error", id=f"error-{key}"))
 
     def _message(self, text: str, key: str | None = None) -> None:
         for error in self.query(".field-error"):
@@ -251,7 +284,26 @@ class ParamForm(VerticalScroll):
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         event.stop()
-        self._submit()
+        self.submit()
+
+    # -- what the key path asks of the form ---------------------------------------------------
+
+    def first_field(self) -> Input | Select | None:
+        """The first parameter field, or None while no stage is shown."""
+        return next(iter(self._fields.values()), None)
+
+    def is_text_field(self, widget: Any) -> bool:
+        return isinstance(widget, Input) and widget in self._fields.values()
+
+    def is_choice(self, widget: Any) -> bool:
+        return isinstance(widget, Select) and widget in self._fields.values()
+
+    def field_name(self, widget: Any) -> str:
+        """The key of the field `widget` is (or is inside), '' if none."""
+        for key, field in self._fields.items():
+            if widget is field or field in getattr(widget, "ancestors", ()):
+                return key
+        return ""
 
     def on_select_changed(self, event: Select.Changed) -> None:
         event.stop()
@@ -263,10 +315,14 @@ class ParamForm(VerticalScroll):
                  else stage.params.get(key, KINDS[stage.kind].defaults.get(key)))
         if event.value == shown:
             return      # a field announcing the value it was built with, not a user's choice
-        self._submit()
+        self.submit()
 
-    def _submit(self) -> None:
-        """Check the candidate designs and post Apply; the derived values follow afterwards."""
+    def submit(self) -> None:
+        """Take the fields as they are now, check the stage designs and post Apply.
+
+        Called by Enter in typing order, so keys typed after the Enter (into the
+        next field) are not part of this apply. The derived values follow afterwards.
+        """
         if self.target is None:
             return
         from filters.design import design_stage
@@ -283,10 +339,11 @@ class ParamForm(VerticalScroll):
 
     def accepted(self, target: FormTarget | None) -> None:
         """The app applied the form's stage: `target` is the new reference, fields stay."""
-        if target is None or self.target is None or target.stage.kind != self.target.stage.kind:
+        if target is None or self.target is None or target.stage.kind != self.target.stage.kind \
+                or target.index != self.target.index:
             return
         self.target = target
-        self.border_title = f"stage {target.index + 1}: {target.stage.kind}"
+        self.border_title = target.title
         self.query_one("#form-head", Static).update(self._head(target))
 
 

@@ -9,9 +9,20 @@ pipeline swaps it in between two blocks (bumpless, via continue_from).
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Any
 
 from filters.spec import ChainSpec
+
+UNDO_DEPTH = 100
+
+
+@dataclass(frozen=True)
+class Edit:
+    """One chain edit the user can take back: the spec before it, and what it did in words."""
+
+    before: ChainSpec
+    what: str
 
 
 class ChainSession:
@@ -26,6 +37,8 @@ class ChainSession:
         self.chain: Any = None          # the newest ChainSet: ours, or the pipeline's
         self._pending: Any = None       # submitted, not yet seen running
         self._lag_cache: dict[tuple[int, str, float], float] = {}
+        self._undo: list[Edit] = []
+        self._redo: list[Edit] = []
 
     @property
     def spec(self) -> ChainSpec:
@@ -70,8 +83,19 @@ class ChainSession:
             return float(known[0])
         raise ValueError("the sample rate is not known yet; wait for data or give --rate")
 
-    def apply(self, spec: ChainSpec) -> Any:
-        """Build and submit a chain for `spec`; ValueError (one sentence) if refused."""
+    def apply(self, spec: ChainSpec, what: str = "") -> Any:
+        """Build and submit a chain for `spec`; ValueError (one sentence) if refused.
+
+        what: the edit in words ("removed notch from load"); given, the edit can be undone.
+        """
+        before = self.spec
+        chain = self._run(spec)
+        if what and spec != before:
+            self._undo = [*self._undo[-(UNDO_DEPTH - 1):], Edit(before, what)]
+            self._redo = []
+        return chain
+
+    def _run(self, spec: ChainSpec) -> Any:
         from filters.chainset import ChainSet
         from monitor.pipeline import ReplaceChain
 
@@ -82,6 +106,35 @@ class ChainSession:
         self.chain = chain
         self._pending = chain
         return chain
+
+    def undo(self) -> str:
+        """Run the chain as it was before the latest edit; what that edit did, in words.
+
+        LookupError when there is nothing to undo; ValueError (nothing changes) when the
+        earlier chain no longer designs at the stream's rate.
+        """
+        return self._step(self._undo, self._redo, "undo")
+
+    def redo(self) -> str:
+        """Run again the edit the latest undo took back; what it does, in words."""
+        return self._step(self._redo, self._undo, "redo")
+
+    def _step(self, source: list[Edit], target: list[Edit], word: str) -> str:
+        if not source:
+            raise LookupError(f"nothing to {word}")
+        edit = source[-1]
+        now = self.spec
+        self._run(edit.before)
+        source.pop()
+        target.append(Edit(now, edit.what))
+        return edit.what
+
+    def position(self, index: int, channel: str) -> int:
+        """Place (1 = runs first) of file stage `index` on `channel`; 0 if not on it."""
+        for n, (i, _) in enumerate(self.spec.stages_for(channel), start=1):
+            if i == index:
+                return n
+        return 0
 
     def designs_for(self, channel: str) -> list[tuple[int, Any]]:
         """(file index, StageDesign) of every stage on `channel`, bypassed ones included."""

@@ -10,6 +10,7 @@ from typing import Any
 from textual.widgets import Static
 
 RATE_MOVE_SHOWN_S = 10.0       # the rate part says the rate moved for this long
+NOTICE_S = 8.0                 # a message answers an action for this long, then clears
 
 STATE_STYLES = {
     "connected": "bold #7fd18b", "connecting": "#e0c060", "reconnecting": "bold #f0a040",
@@ -21,7 +22,9 @@ STATE_STYLES = {
 class UiState:
     """What the UI adds to the pipeline's status line.
 
-    notice:  one-shot sentence (the latest message), or "".
+    notice:  one-shot sentence (the latest message), or ""; shown for NOTICE_S after
+             notice_at (time.monotonic()), then cleared.
+    focus: where the keys go now, in words ("" when nowhere in particular).
     frozen: the trace is frozen (the view hold is the pipeline's `paused`).
     window_s: trace time window in seconds.
     analysis_hz: frequency at which lag is reported.
@@ -30,6 +33,8 @@ class UiState:
     """
 
     notice: str = ""
+    notice_at: float = 0.0
+    focus: str = ""
     frozen: bool = False
     window_s: float = 5.0
     analysis_hz: float = 1.0
@@ -72,10 +77,18 @@ def recording_text(status: Any, ui: UiState, now: float | None = None) -> str:
     return "not recording"
 
 
+def current_notice(ui: UiState, now: float | None = None) -> str:
+    """The latest message while it is fresh, else ''."""
+    if ui.notice and (now or time.monotonic()) - ui.notice_at <= NOTICE_S:
+        return ui.notice
+    return ""
+
+
 def status_lines(status: Any, ui: UiState) -> tuple[str, str]:
     """Plain text of the two lines (markup-free; tests and the tmux check read these)."""
+    notice = current_notice(ui)
     if status is None:
-        return "starting...", ui.notice
+        return "starting...", notice
     rate = (f"{status.rate_hz:.4g} Hz ({status.rate_origin})" if status.rate_hz
             else "rate unknown yet")
     if status.rate_hz and getattr(status, "rate_moved_at", None) is not None \
@@ -91,7 +104,9 @@ def status_lines(status: Any, ui: UiState) -> tuple[str, str]:
     if ui.frozen:
         flags.append("TRACE FROZEN")
     flags.append("edits: this channel" if ui.scope == "channel" else "edits: all sharing")
-    parts = [ui.notice] if ui.notice else []
+    if ui.focus:
+        flags.append(f"keys to: {ui.focus}")
+    parts = [notice] if notice else []
     parts.append(recording_text(status, ui))
     if status.chain_error:
         parts.append(f"chain: {status.chain_error}")
@@ -125,6 +140,6 @@ class StatusBar(Static):
             if i:
                 text.append("  |  ", style="#5a6b7d")
             style = ("bold #ff8080" if part.startswith("REC ") else
-                     "#e0c060" if i == 0 and ui.notice else "")
+                     "#e0c060" if i == 0 and current_notice(ui) else "")
             text.append(part, style=style)
         self.update(text)

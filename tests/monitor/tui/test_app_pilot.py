@@ -75,13 +75,9 @@ async def type_into(pilot, app, selector: str, text: str) -> None:
 
 
 async def leave_field(pilot, app) -> None:
-    """Escape to the channel table and wait until the focus is there.
-
-    The focus moves on a later turn of the event loop; a key sent before it lands
-    (q, or a test's own focus call) would still go to the field.
-    """
-    await pilot.press("escape")
-    assert await until(pilot, lambda: app.focused is app.query_one("#channels"))
+    """Esc back to the channel table (a field -> the stage list -> the table), one level a key."""
+    await pilot.press("escape", "escape")
+    assert app.focused is app.query_one("#channels")
 
 
 def palette_offers(app, query: str, label: str) -> bool:
@@ -206,6 +202,10 @@ def test_add_a_stage_from_the_kind_list_and_copy_the_chain(start_pipeline):
             await pilot.press("enter")
             assert await until(pilot, lambda: kinds_on(pipeline, "current") == ["ema"])
             assert kinds_on(pipeline, "load") == []
+            # the new stage's first field has the keys (key path), esc twice goes to the table
+            form = app.query_one("#form")
+            assert await until(pilot, lambda: app.focused is form.first_field())
+            await leave_field(pilot, app)
             await pilot.press("c")
             assert await until(pilot, lambda: isinstance(app.screen, PickChannels)
                                and bool(app.screen.query("#channels")))
