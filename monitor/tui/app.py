@@ -255,7 +255,7 @@ class TunetraceApp(KeyOrder, ChainActions, FileActions, PlotActions, App[int]):
             self._field_wanted = None
             first = form.first_field()
             if first is not None:
-                first.focus()
+                self.focus_now(first)
 
     # -- the key path: enter goes in, esc comes back, tab goes round ---------------------------
 
@@ -268,7 +268,7 @@ class TunetraceApp(KeyOrder, ChainActions, FileActions, PlotActions, App[int]):
         in_form = focused is not None and form in focused.ancestors
         if key == "enter":
             if focused is self.table:
-                stages.focus()
+                self.focus_now(stages)
                 if not stages.indices:
                     self.say(f"{self.channel} has no stage yet: a adds one")
                 return True
@@ -283,15 +283,19 @@ class TunetraceApp(KeyOrder, ChainActions, FileActions, PlotActions, App[int]):
             if in_form and not form.is_text_field(focused) and not form.is_choice(focused):
                 return False                     # an open choice list closes itself
             if in_form:
-                stages.focus()
+                self.focus_now(stages)
             elif focused is stages:
-                self.table.focus()
+                self.focus_now(self.table)
             elif focused is self.table:
                 self.say("already at the channel table (q quits)")
             else:
-                self.table.focus()
+                self.focus_now(self.table)
             return True
         return False
+
+    def focus_now(self, widget: Any) -> None:
+        """Move the focus before the next key is handled (Widget.focus waits a turn)."""
+        self.screen.set_focus(widget)
 
     def enter_stage(self, index: int | None = None) -> None:
         """Focus the first parameter field of stage `index` (default: the highlighted one);
@@ -384,7 +388,7 @@ class TunetraceApp(KeyOrder, ChainActions, FileActions, PlotActions, App[int]):
         self.push_screen(HelpScreen())
 
     def action_focus_table(self) -> None:
-        self.table.focus()
+        self.focus_now(self.table)
 
     def action_select_channel(self, index: int) -> None:
         if index >= len(self.session.channels):

@@ -173,6 +173,9 @@ class ChainActions:
                                      self.session.channels)
         self.apply_spec(spec, what=f"chain of {self.channel} copied to {', '.join(targets)}")
 
+    def on_param_form_notice(self, message: ParamForm.Notice) -> None:
+        self.say(message.text)
+
     def on_param_form_apply(self, message: ParamForm.Apply) -> None:
         """Enter in a field: the new stage replaces the highlighted one (scope rule applies)."""
         form = self.query_one("#form", ParamForm)

@@ -23,6 +23,7 @@ Everything else takes textual's usual path.
 
 from __future__ import annotations
 
+import functools
 import time
 from collections import deque
 from collections.abc import Callable
@@ -31,7 +32,7 @@ from typing import Any
 from textual import events
 from textual.binding import Binding
 from textual.screen import ModalScreen
-from textual.widgets import Input
+from textual.widgets import Input, Select
 
 HOLD_TIMEOUT_S = 1.0
 HOLD_POLL_S = 0.02
@@ -42,6 +43,7 @@ def binding_map(bindings: Any) -> dict[str, str]:
     return {b.key: b.action for b in Binding.make_bindings(bindings)}
 
 
+@functools.lru_cache(maxsize=256)
 def _class_bindings(cls: type, priority_only: bool = False) -> dict[str, str]:
     """Every key bound in the BINDINGS of `cls` and its bases (nearest class wins)."""
     found: dict[str, str] = {}
@@ -160,28 +162,45 @@ class KeyOrder:
         if key in _class_bindings(type(self), priority_only=True) or key == getattr(
                 self, "COMMAND_PALETTE_BINDING", None):
             return False                           # quit, palette: textual's own path
+        screen = self.screen
+        modal = isinstance(screen, ModalScreen)
+        first = _class_bindings(type(screen), priority_only=True).get(key)
+        if first is not None:                      # the dialog's own enter (ticked channels)
+            await self.run_action(first, screen)
+            if modal:
+                self.hold_keys(lambda: self.screen is not screen, timeout_s=0.3)
+            return True
         if key in ("tab", "shift+tab"):
             (self.screen.focus_next if key == "tab" else self.screen.focus_previous)()
             return True
-        modal = isinstance(self.screen, ModalScreen)
         if not modal and await self.navigate(key):
             return True
+        handled = await self._run_binding(focused, event, modal)
+        if handled and modal and key in ("enter", "escape"):
+            # a dialog's answer or cancel: it closes (or says why it stays) on a later turn
+            self.hold_keys(lambda: self.screen is not screen, timeout_s=0.3)
+        return handled
+
+    async def _run_binding(self, focused: Any, event: events.Key, modal: bool) -> bool:
+        """Run the binding `event.key` has for the focus, its dialog or the app, now."""
+        key = event.key
         if isinstance(focused, Input):
-            screen = self.screen
-            if await type_into(self, focused, event):
-                if key == "enter" and modal:       # a dialog's answer: it closes or says why
-                    self.hold_keys(lambda: self.screen is not screen, timeout_s=0.3)
-                return True
+            return await type_into(self, focused, event)
+        own = _class_bindings(type(focused)) if focused is not None else {}
+        if key in own:                             # a list's arrows, a choice's enter
+            await self.run_action(own[key], focused)
+            if isinstance(focused, Select) or any(isinstance(a, Select)
+                                                  for a in focused.ancestors):
+                # a choice list opening or closing moves the focus on a later turn
+                self.hold_keys(lambda: self.focused is not focused, timeout_s=0.3)
+            return True
         if modal:
             action = _class_bindings(type(self.screen)).get(key)
-            if action is not None and key in ("escape", "enter"):
-                screen = self.screen
-                await self.run_action(action, screen)
-                self.hold_keys(lambda: self.screen is not screen, timeout_s=0.3)
-                return True
-            return False
-        own = _class_bindings(type(focused)) if focused is not None else {}
-        if not isinstance(focused, Input) and key in self.app_keys and key not in own:
+            if action is None:
+                return False
+            await self.run_action(action, self.screen)
+            return True
+        if key in self.app_keys:
             await self.run_action(self.app_keys[key])
             return True
         return False

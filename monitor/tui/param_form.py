@@ -148,6 +148,13 @@ class ParamForm(VerticalScroll, can_focus=False):
             self.index = index
             self.stage = stage
 
+    class Notice(Message):
+        """A sentence for the status line: why Enter applied nothing."""
+
+        def __init__(self, text: str) -> None:
+            super().__init__()
+            self.text = text
+
     def __init__(self, *, id: str | None = None) -> None:
         super().__init__(id=id)
         self.target: FormTarget | None = None
@@ -330,11 +337,15 @@ class ParamForm(VerticalScroll, can_focus=False):
         try:
             stage = self.candidate()
             design_stage(stage, self.target.rate_hz)
-        except ValueError:
+        except ValueError as exc:
             self.preview()              # shows the refusal beside its field
+            self.app.post_message(self.Notice(f"refused: {exc}; the running chain goes on"))
             return
         if stage != self.target.stage:   # straight to the app: no hop per container
             self.app.post_message(self.Apply(self.target.index, stage))
+        else:
+            self.app.post_message(self.Notice(
+                f"nothing to apply: the fields hold what {self.target.title} runs"))
         self.call_after_refresh(self.preview)
 
     def accepted(self, target: FormTarget | None) -> None:
