@@ -13,7 +13,7 @@ import math
 import pytest
 from textual.app import App, ComposeResult
 
-from monitor.tui.channel_table import COLUMNS, ChannelRow, ChannelTable, row_cells
+from monitor.tui.channel_table import COLUMNS, ChannelRow, ChannelTable, heading, row_cells
 
 ROW = ChannelRow(name="load", unit="kg", last=12.031, mean=11.9875, rms_raw=0.05123,
                  rms_filtered=0.004567, reduction_db=21.02, white_db=18.4, lag_ms=36.25,
@@ -59,12 +59,12 @@ def test_the_drawn_table_holds_each_figure_under_its_column():
 
     async def run() -> None:
         app = TableApp()
-        async with app.run_test() as pilot:
+        async with app.run_test(size=(160, 48)) as pilot:      # wide enough for every column
             table = app.query_one(ChannelTable)
             table.show([ROW])
             await pilot.pause()
-            for key, label, _ in COLUMNS:
-                assert str(table.columns[key].label) == label
+            for key, _, _ in COLUMNS:
+                assert str(table.columns[key].label) == heading(key)
                 check_cell(key, str(table.get_cell(ROW.name, key)))
             table.show([ROW])                     # the update path (same channels)
             await pilot.pause()
