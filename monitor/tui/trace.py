@@ -23,13 +23,28 @@ WINDOWS_S: tuple[float, ...] = (0.5, 1.0, 2.0, 5.0, 10.0, 20.0, 30.0, 60.0, 120.
 LABEL_WIDTH = 10
 
 
+GLYPH = "\u28ff"                 # a full braille cell: the colour sample of a series
+# the legend's forms, widest first: (text, style) pieces; words are never cut, a form is
+# either drawn whole or not at all
+LEGEND_FORMS: tuple[tuple[tuple[str, Style], ...], ...] = (
+    (("raw ", AXIS_STYLE), (GLYPH, RAW_STYLE), ("  filtered ", AXIS_STYLE),
+     (GLYPH, FILTERED_STYLE)),
+    (("raw ", AXIS_STYLE), (GLYPH, RAW_STYLE), (" filt ", AXIS_STYLE), (GLYPH, FILTERED_STYLE)),
+    (("raw", AXIS_STYLE), (GLYPH, RAW_STYLE), (" filt", AXIS_STYLE), (GLYPH, FILTERED_STYLE)),
+)
+NOW = "now"
+GAP_AFTER_TIME = 3               # spaces between the left time label and the legend
+GAP_BEFORE_NOW = 2               # at least this many before "now"
+
+
 def _label(value: float) -> str:
     return f"{value:>{LABEL_WIDTH - 1}.4g} "
 
 
 def trace_rows(raw: np.ndarray, filtered: np.ndarray, span_s: float, width: int,
                height: int) -> list[list[Segment]]:
-    """Segments of every row: y labels, the braille raster, then a time axis with a legend.
+    """Segments of every row: y labels, the braille raster, then a time axis with a legend
+    (`legend_row`); every row is exactly `width` cells.
 
     raw, filtered: (n,) float64 oldest first; width, height: cells including labels/axis.
     """
@@ -49,13 +64,55 @@ def trace_rows(raw: np.ndarray, filtered: np.ndarray, span_s: float, width: int,
     for r, a, b, series in zip(run_row.tolist(), run_start.tolist(), run_end.tolist(),
                                owner[run_row, run_start].tolist(), strict=True):
         rows[r].append(Segment(texts[r][a:b], SERIES_STYLES[series] if series >= 0 else None))
-    left = f"{'':{LABEL_WIDTH}}-{span_s:.3g} s   raw "
-    legend = [Segment(left, AXIS_STYLE), Segment("\u28ff", RAW_STYLE),
-              Segment("  filtered ", AXIS_STYLE), Segment("\u28ff", FILTERED_STYLE)]
-    used = sum(len(s.text) for s in legend)
-    legend.append(Segment(" " * max(width - used - 3, 1) + "now", AXIS_STYLE))
-    rows.append(legend)
+    rows.append(legend_row(span_s, width))
     return rows
+
+
+def _form_width(form: tuple[tuple[str, Style], ...]) -> int:
+    return sum(len(text) for text, _ in form)
+
+
+def legend_row(span_s: float, width: int) -> list[Segment]:
+    """The bottom row, exactly `width` cells: "-5 s" under the plot's left edge, the widest
+    legend form that fits, "now" at the right end.
+
+    The legend goes after the time label when it fits there, else into the (empty) label
+    column on the left if it fits that, else it is left out; the time labels always come
+    first (from width 8 on), and a word is never cut.
+    """
+    left = f"-{span_s:.3g} s"
+    if width < len(left) + 1 + len(NOW):            # no room for both time labels
+        return [Segment(f"{NOW:>{width}}" if width >= len(NOW) else " " * max(width, 0),
+                        AXIS_STYLE)]
+    tail = 1 + len(NOW)
+    at = LABEL_WIDTH if LABEL_WIDTH + len(left) + tail <= width else width - len(left) - tail
+    placed: tuple[int, tuple[tuple[str, Style], ...]] | None = None
+    for form in LEGEND_FORMS:                       # after the time label
+        start = at + len(left) + GAP_AFTER_TIME
+        if start + _form_width(form) + GAP_BEFORE_NOW + len(NOW) <= width:
+            placed = (start, form)
+            break
+    else:
+        for form in LEGEND_FORMS:                   # in the label column, the time label after
+            moved = max(at, _form_width(form) + 1)  # (one cell right of the plot's edge at most)
+            if moved <= LABEL_WIDTH + 1 and moved + len(left) + tail <= width:
+                at, placed = moved, (moved - 1 - _form_width(form), form)
+                break
+    pieces: list[tuple[int, str, Style]] = [(at, left, AXIS_STYLE),
+                                            (width - len(NOW), NOW, AXIS_STYLE)]
+    if placed is not None:
+        column = placed[0]
+        for text, style in placed[1]:
+            pieces.append((column, text, style))
+            column += len(text)
+    segments: list[Segment] = []
+    column = 0
+    for start, text, style in sorted(pieces, key=lambda p: p[0]):
+        if start > column:
+            segments.append(Segment(" " * (start - column), AXIS_STYLE))
+        segments.append(Segment(text, style))
+        column = start + len(text)
+    return segments
 
 
 class TraceView(Widget):
@@ -91,8 +148,7 @@ class TraceView(Widget):
             return
         rows = trace_rows(self._raw, self._filtered, self._span_s, width, height)
         # every row is exactly `width` cells (braille and labels are one cell per character)
-        self._strips = [Strip(row, width) for row in rows[:-1]]
-        self._strips.append(Strip(rows[-1]).crop_extend(0, width, None))   # the legend row
+        self._strips = [Strip(row, width) for row in rows]
 
     def render_line(self, y: int) -> Strip:
         if self._drawn_size != (self.content_size.width, self.content_size.height):
