@@ -52,24 +52,3 @@ def start_pipeline(pty_board, wait_for):
     yield start
     for p in started:
         p.stop()
-
-
-@pytest.fixture(autouse=True)
-def pilot_idle_by_events(monkeypatch):
-    """Let pilot.press return once the key is delivered instead of when the process idles.
-
-    textual's pilot waits after each key until the process's CPU time stops
-    advancing (textual._wait.wait_for_idle, up to 1 s, twice per key); the live
-    pipeline's reader thread in this process never lets it, so every key would
-    cost 2 s. The tests synchronise on what they check instead (`until`).
-    """
-    import asyncio
-
-    import textual.app
-    import textual.pilot
-
-    async def short_wait(min_sleep: float = 0.0, max_sleep: float = 1.0) -> None:
-        await asyncio.sleep(0.01)
-
-    monkeypatch.setattr(textual.app, "wait_for_idle", short_wait)
-    monkeypatch.setattr(textual.pilot, "wait_for_idle", short_wait)

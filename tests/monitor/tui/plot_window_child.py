@@ -9,7 +9,7 @@ from __future__ import annotations
 import asyncio
 import json
 
-from tui_helpers import make_app, until
+from tui_helpers import make_app, press, until
 
 from monitor.pipeline import Pipeline, text_source
 from monitor.sources import open_byte_source
@@ -30,7 +30,7 @@ def main() -> None:
             report["pumped"] = await until(
                 pilot, lambda: app.plot is not None and app.plot.frames >= 3, 20)
             report["frames"] = app.plot.frames if app.plot is not None else 0
-            await pilot.press("q")
+            await press(pilot, "q")
         report["closed_on_quit"] = app.plot is not None and not app.plot.is_open
         report["exit"] = app.return_value
 

@@ -11,7 +11,7 @@ import pytest
 from scipy import signal
 from textual.command import CommandList, CommandPalette
 from textual.widgets import Input
-from tui_helpers import answer, asking, make_app, until
+from tui_helpers import answer, asking, make_app, press, until
 
 from filters.chainfile import format_chain, parse_chain
 from filters.design import design_stage
@@ -70,13 +70,13 @@ async def type_into(pilot, app, selector: str, text: str) -> None:
     field.focus()
     assert await until(pilot, lambda: app.focused is field)
     field.value = ""
-    await pilot.press(*text)
+    await press(pilot, *text)
     assert await until(pilot, lambda: field.value == text)
 
 
 async def leave_field(pilot, app) -> None:
     """Esc back to the channel table (a field -> the stage list -> the table), one level a key."""
-    await pilot.press("escape", "escape")
+    await press(pilot, "escape", "escape")
     assert app.focused is app.query_one("#channels")
 
 
@@ -102,7 +102,7 @@ def test_editing_a_cutoff_reaches_the_running_chain(start_pipeline):
         async with app.run_test(size=SIZE) as pilot:
             await highlight_stage(pilot, app, 2)                  # rc-lowpass of load
             await type_into(pilot, app, "#field-cutoff_hz", "4.5")
-            await pilot.press("enter")
+            await press(pilot, "enter")
             expected = design_stage(StageSpec("rc-lowpass", {"cutoff_hz": 4.5}), RATE).sos
 
             def running_sos():
@@ -120,7 +120,7 @@ def test_editing_a_cutoff_reaches_the_running_chain(start_pipeline):
             assert "applied" in app.ui.notice
             assert app.focused is app.query_one("#field-cutoff_hz")   # focus stays in the field
             await leave_field(pilot, app)
-            await pilot.press("q")                                     # quit
+            await press(pilot, "q")                                     # quit
             assert await until(pilot, lambda: app.return_value is not None)
         return app.return_value
 
@@ -137,7 +137,7 @@ def test_a_cutoff_above_nyquist_is_refused_beside_the_field(start_pipeline):
             before = pipeline.chain
             sos_before = dict(before.designs_for("load"))[2].sos.copy()
             await type_into(pilot, app, "#field-cutoff_hz", "200")
-            await pilot.press("enter")
+            await press(pilot, "enter")
             assert await until(pilot, lambda: "Nyquist" in field_error(app, "cutoff_hz"))
             await pilot.pause(0.3)                                 # several reader blocks
             assert pipeline.chain is before
@@ -147,12 +147,12 @@ def test_a_cutoff_above_nyquist_is_refused_beside_the_field(start_pipeline):
             await type_into(pilot, app, "#field-cutoff_hz", "8k")
             assert await until(pilot, lambda: "cutoff_hz must be a number"
                                in field_error(app, "cutoff_hz"))
-            await pilot.press("enter")
+            await press(pilot, "enter")
             await pilot.pause(0.2)
             assert pipeline.chain is before
             assert pipeline.status().running
             await leave_field(pilot, app)
-            await pilot.press("q")
+            await press(pilot, "q")
 
     run(scenario())
 
@@ -164,24 +164,24 @@ def test_remove_and_reorder_stages(start_pipeline):
         app = make_app(pipeline)
         async with app.run_test(size=SIZE) as pilot:
             await highlight_stage(pilot, app, 0)                  # median
-            await pilot.press("greater_than_sign")
+            await press(pilot, "greater_than_sign")
             assert await until(pilot, lambda: kinds_on(pipeline, "load")
                                == ["notch", "median", "rc-lowpass"])
             assert kinds_on(pipeline, "current") == ["notch"]      # untouched
-            await pilot.press("less_than_sign")
+            await press(pilot, "less_than_sign")
             assert await until(pilot, lambda: kinds_on(pipeline, "load")
                                == ["median", "notch", "rc-lowpass"])
             await highlight_stage(pilot, app, 1)                  # the shared notch
-            await pilot.press("d")
+            await press(pilot, "d")
             assert await until(pilot, lambda: kinds_on(pipeline, "load")
                                == ["median", "rc-lowpass"])
             assert kinds_on(pipeline, "current") == ["notch"]      # split off, not removed
-            await pilot.press("b")                                 # bypass rc-lowpass
+            await press(pilot, "b")                                 # bypass rc-lowpass
             assert await until(pilot, lambda: pipeline.chain.spec.stages_for("load")[1][1].bypass)
-            await pilot.press("m")                                 # next method
+            await press(pilot, "m")                                 # next method
             assert await until(pilot, lambda: pipeline.chain.spec.stages_for("load")[1][1]
                                .params.get("method") == "zoh")
-            await pilot.press("q")
+            await press(pilot, "q")
 
     run(scenario())
 
@@ -192,28 +192,28 @@ def test_add_a_stage_from_the_kind_list_and_copy_the_chain(start_pipeline):
     async def scenario():
         app = make_app(pipeline)
         async with app.run_test(size=SIZE) as pilot:
-            await pilot.press("2")                                 # channel current
+            await press(pilot, "2")                                 # channel current
             assert await until(pilot, lambda: app.channel == "current")
-            await pilot.press("a")
+            await press(pilot, "a")
             assert await until(pilot, lambda: isinstance(app.screen, PickKind)
                                and bool(app.screen.query("#kinds")))
             kinds = app.screen.query_one("#kinds")
             kinds.highlighted = [o.id for o in kinds.options].index("ema")
-            await pilot.press("enter")
+            await press(pilot, "enter")
             assert await until(pilot, lambda: kinds_on(pipeline, "current") == ["ema"])
             assert kinds_on(pipeline, "load") == []
             # the new stage's first field has the keys (key path), esc twice goes to the table
             form = app.query_one("#form")
             assert await until(pilot, lambda: app.focused is form.first_field())
             await leave_field(pilot, app)
-            await pilot.press("c")
+            await press(pilot, "c")
             assert await until(pilot, lambda: isinstance(app.screen, PickChannels)
                                and bool(app.screen.query("#channels")))
-            app.screen.query_one("#channels").select("vib")
-            await pilot.press("enter")
+            # others in channel order: load, vib; down to vib, space ticks it, enter copies
+            await press(pilot, "down", "space", "enter")
             assert await until(pilot, lambda: kinds_on(pipeline, "vib") == ["ema"])
             assert kinds_on(pipeline, "load") == []
-            await pilot.press("q")
+            await press(pilot, "q")
 
     run(scenario())
 
@@ -225,11 +225,11 @@ def test_record_creates_a_file_that_grows_and_stops(start_pipeline, tmp_path, mo
     async def scenario():
         app = make_app(pipeline, verb="demo")
         async with app.run_test(size=SIZE) as pilot:
-            await pilot.press("r")
+            await press(pilot, "r")
             assert await until(pilot, lambda: asking(app))
             proposed = app.screen.query_one("#answer").value
             assert re.fullmatch(r"weigh-\d{8}-\d{6}\.csv", proposed)
-            await pilot.press("enter")
+            await press(pilot, "enter")
             path = tmp_path / proposed
             assert await until(pilot, lambda: path.exists() and path.stat().st_size > 0)
             assert await until(pilot, lambda: pipeline.status().recording is not None)
@@ -237,19 +237,19 @@ def test_record_creates_a_file_that_grows_and_stops(start_pipeline, tmp_path, mo
             assert await until(pilot, lambda: path.stat().st_size > first)
             assert await until(pilot, lambda: "REC " + proposed
                                in str(app.query_one("#status").render()))
-            await pilot.press("r")                                 # stop
+            await press(pilot, "r")                                 # stop
             assert await until(pilot, lambda: pipeline.status().recording is None)
             text = path.read_text()
             assert text.startswith("# tunetrace recording 1")
             assert "t_host,load,current,vib" in text
             # an unwritable place: one sentence, the stream goes on unrecorded
-            await pilot.press("r")
+            await press(pilot, "r")
             assert await until(pilot, lambda: asking(app))
             app.screen.query_one("#answer").value = str(tmp_path / "no-such-dir" / "x.csv")
-            await pilot.press("enter")
+            await press(pilot, "enter")
             assert await until(pilot, lambda: "does not exist" in app.ui.notice)
             assert pipeline.status().recording is None and pipeline.status().running
-            await pilot.press("q")
+            await press(pilot, "q")
 
     run(scenario())
 
@@ -280,7 +280,7 @@ def test_malformed_chain_file_is_refused_and_a_saved_one_loads(start_pipeline, t
             other.write_text('[[stage]]\nkind = "ema"\nalpha = 0.25\n')
             await answer(pilot, app, "l", str(other))
             assert await until(pilot, lambda: kinds_on(pipeline, "vib") == ["ema"])
-            await pilot.press("q")
+            await press(pilot, "q")
 
     run(scenario())
 
@@ -291,7 +291,7 @@ def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline
     async def scenario():
         app = make_app(pipeline)
         async with app.run_test(size=SIZE) as pilot:
-            await pilot.press("question_mark")
+            await press(pilot, "question_mark")
             assert await until(pilot, lambda: isinstance(app.screen, HelpScreen))
             console_text = _plain(app, app.screen.body)
             for action in ACTIONS:
@@ -300,7 +300,7 @@ def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline
             for column in ("NR dB", "white dB", "lag ms"):        # the table's figures explained
                 assert column in flat
             assert "-10 log10(sum h^2)" in flat and "settled after a step" in flat
-            await pilot.press("escape")
+            await press(pilot, "escape")
             assert await until(pilot, lambda: not isinstance(app.screen, HelpScreen))
             from monitor.tui.palette import SessionCommands
 
@@ -310,17 +310,17 @@ def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline
             found = [hit async for hit in provider.discover()]
             assert len(found) == len(ACTIONS)
             # through textual's palette itself: ctrl+p, a few letters, enter runs the action
-            await pilot.press("ctrl+p")
+            await press(pilot, "ctrl+p")
             assert await until(pilot, lambda: CommandPalette.is_open(app))
-            await pilot.press(*"lag frequency")
+            await press(pilot, *"lag frequency")
             assert await until(pilot, lambda: palette_offers(app, "lag frequency",
                                                              "lag frequency (g)"))
-            await pilot.press("enter")
+            await press(pilot, "enter")
             assert await until(pilot, lambda: asking(app))
             assert "lag is computed" in str(app.screen.query_one("Label").render())
-            await pilot.press("escape")
+            await press(pilot, "escape")
             assert await until(pilot, lambda: not isinstance(app.screen, AskValue))
-            await pilot.press("q")
+            await press(pilot, "q")
 
     run(scenario())
 
@@ -331,30 +331,30 @@ def test_view_hold_trace_freeze_window_and_analysis_frequency(start_pipeline):
     async def scenario():
         app = make_app(pipeline)
         async with app.run_test(size=SIZE) as pilot:
-            await pilot.press("space")
+            await press(pilot, "space")
             assert await until(pilot, lambda: pipeline.status().paused)
             total = pipeline.ring.total
             await pilot.pause(0.3)
             assert pipeline.ring.total == total                   # the view holds still
-            await pilot.press("space")
+            await press(pilot, "space")
             assert await until(pilot, lambda: pipeline.ring.total > total)
-            await pilot.press("f")
+            await press(pilot, "f")
             assert await until(pilot, lambda: app.ui.frozen)
-            await pilot.press("f", "minus")
+            await press(pilot, "f", "minus")
             assert await until(pilot, lambda: app.ui.window_s < 5.0)
             lag_1hz = app.session.lag_ms("load", 1.0)
-            await pilot.press("g")
+            await press(pilot, "g")
             assert await until(pilot, lambda: asking(app))
             app.screen.query_one("#answer").value = "500"          # above Nyquist: refused
-            await pilot.press("enter")
+            await press(pilot, "enter")
             assert isinstance(app.screen, AskValue)
             app.screen.query_one("#answer").value = "20"
-            await pilot.press("enter")
+            await press(pilot, "enter")
             assert await until(pilot, lambda: app.ui.analysis_hz == 20.0)
             assert app.session.lag_ms("load", 20.0) != pytest.approx(lag_1hz)
-            await pilot.press("t")                                 # live: replay-only key
+            await press(pilot, "t")                                 # live: replay-only key
             assert await until(pilot, lambda: "replaying" in app.ui.notice)
-            await pilot.press("q")
+            await press(pilot, "q")
 
     run(scenario())
 
@@ -377,9 +377,9 @@ def test_a_vanishing_source_is_said_and_the_session_goes_on(start_pipeline, pty_
             pty_board.close()                                      # the board is unplugged
             assert await until(pilot, lambda: "went away" in app.ui.notice)
             assert "reconnecting" in str(app.query_one("#status").render())
-            await pilot.press("2")                                 # the UI still answers
+            await press(pilot, "2")                                 # the UI still answers
             assert await until(pilot, lambda: app.channel == "current")
-            await pilot.press("q")
+            await press(pilot, "q")
             assert await until(pilot, lambda: app.return_value == 0)
 
     run(scenario())
@@ -399,7 +399,7 @@ def test_components_give_derived_values_and_a_poor_method_warns(start_pipeline):
             # Handbook RC low-pass: fc = 1 / (2 pi R C) = 15.915 Hz for 10 kohm and 1 uF.
             assert await until(pilot, lambda: "cutoff_hz = 15.915" in str(derived.render()))
             assert "time_constant_s = 0.01" in str(derived.render())
-            await pilot.press("enter")
+            await press(pilot, "enter")
             assert await until(pilot, lambda: pipeline.chain.spec.stages[2].params
                                == {"r_ohm": 10000.0, "c_farad": 1e-6})
             running = dict(pipeline.chain.designs_for("load"))[2]
@@ -416,7 +416,7 @@ def test_components_give_derived_values_and_a_poor_method_warns(start_pipeline):
             assert await until(pilot, lambda: pipeline.chain.spec.stages[2].params.get("method")
                                == "matched")
             await leave_field(pilot, app)
-            await pilot.press("q")
+            await press(pilot, "q")
 
     run(scenario())
 
@@ -433,15 +433,15 @@ def test_shared_scope_edits_every_channel_of_a_shared_stage(start_pipeline):
         async with app.run_test(size=SIZE) as pilot:
             await highlight_stage(pilot, app, 1)                  # notch of load and current
             assert "shared with current" in str(app.query_one("#form-head").render())
-            await pilot.press("e")
+            await press(pilot, "e")
             assert app.ui.scope == "shared" and "every channel" in app.ui.notice
-            await pilot.press("b")
+            await press(pilot, "b")
             assert await until(pilot, lambda: notch_bypassed("load") and notch_bypassed("current"))
             assert len(pipeline.chain.spec.stages) == 3           # edited in place, not split
-            await pilot.press("e", "b")                           # back to this channel only
+            await press(pilot, "e", "b")                           # back to this channel only
             assert await until(pilot, lambda: not notch_bypassed("load"))
             assert notch_bypassed("current")
-            await pilot.press("q")
+            await press(pilot, "q")
 
     run(scenario())
 
@@ -471,7 +471,7 @@ def test_noise_figures_after_lowering_a_cutoff_while_parcels_land(start_pipeline
             await highlight_stage(pilot, app, 2)                  # rc-lowpass of load
             before = pipeline.status().samples_total
             await type_into(pilot, app, "#field-cutoff_hz", "2")
-            await pilot.press("enter")
+            await press(pilot, "enter")
             assert await until(pilot, lambda: pipeline.status().chain_since >= before)
             assert await until(pilot, lambda: cell("white_db") == f"{white:.1f}")
             readings = []
@@ -481,7 +481,7 @@ def test_noise_figures_after_lowering_a_cutoff_while_parcels_land(start_pipeline
                     readings.append(float(cell("reduction_db")))
             assert len(readings) >= 6 and min(readings) > 3.0, readings
             await leave_field(pilot, app)
-            await pilot.press("q")
+            await press(pilot, "q")
             assert await until(pilot, lambda: app.return_value is not None)
         return app.return_value
 
