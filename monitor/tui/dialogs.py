@@ -7,9 +7,11 @@ from collections.abc import Iterable, Sequence
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
+from textual.content import Content
+from textual.message import Message
 from textual.screen import ModalScreen
 from textual.validation import Validator
-from textual.widgets import Input, Label, OptionList, SelectionList, Static
+from textual.widgets import Input, Label, OptionList, Static
 from textual.widgets.option_list import Option
 
 from filters.kinds import KINDS
@@ -89,10 +91,86 @@ class PickKind(ModalScreen[str | None]):
         self.dismiss(None)
 
 
-class PickChannels(ModalScreen[list[str] | None]):
-    """Tick channels (space), enter confirms; returns the ticked names or None."""
+TICKED = "[x] "
+UNTICKED = "[ ] "
+NONE_TICKED = "tick at least one channel (space), or esc to cancel"
 
-    DEFAULT_CSS = DIALOG_CSS.format(name="PickChannels")
+
+class TickList(OptionList):
+    """A list of names, each line starting "[x] " when ticked and "[ ] " when not.
+
+    Written on textual's OptionList because SelectionList draws the same "X" for
+    ticked and unticked lines (only the colour differs) and its glyph is a class
+    constant shared with every ToggleButton, not something one list can change.
+    Space ticks or unticks the highlighted line, `a` ticks all (or none when all
+    are ticked already), a click toggles the clicked line.
+    """
+
+    BINDINGS = [Binding("space", "toggle", "tick", show=False),
+                Binding("a", "toggle_all", "tick all", show=False)]
+
+    class Changed(Message):
+        """The ticks changed; `ticked` are the ticked names in list order."""
+
+        def __init__(self, tick_list: TickList, ticked: list[str]) -> None:
+            super().__init__()
+            self.tick_list = tick_list
+            self.ticked = ticked
+
+    def __init__(self, names: Sequence[str], id: str | None = None) -> None:
+        self.names = list(names)
+        self._ticked = [False] * len(self.names)
+        super().__init__(*[Option(self._prompt(i)) for i in range(len(self.names))], id=id)
+
+    def _prompt(self, index: int) -> Content:
+        # Content, not a str: a str prompt is read as markup and "[x]" would vanish.
+        return Content((TICKED if self._ticked[index] else UNTICKED) + self.names[index])
+
+    @property
+    def ticked(self) -> list[str]:
+        """The ticked names, in list order."""
+        return [n for n, on in zip(self.names, self._ticked, strict=True) if on]
+
+    def set_ticked(self, index: int, on: bool) -> None:
+        """Tick (`on`) or untick the line at `index` (0-based) and redraw it."""
+        if self._ticked[index] != on:
+            self._ticked[index] = on
+            self.replace_option_prompt_at_index(index, self._prompt(index))
+
+    def on_mount(self) -> None:
+        if self.names and self.highlighted is None:
+            self.highlighted = 0
+
+    def action_toggle(self) -> None:
+        index = self.highlighted
+        if index is None:
+            return
+        self.set_ticked(index, not self._ticked[index])
+        self.post_message(self.Changed(self, self.ticked))
+
+    def action_toggle_all(self) -> None:
+        on = not all(self._ticked)
+        for index in range(len(self.names)):
+            self.set_ticked(index, on)
+        self.post_message(self.Changed(self, self.ticked))
+
+    def _on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
+        # a click (enter is the dialog's confirm): toggle the line instead of choosing it
+        if event.option_list is self:
+            event.stop()
+            self.action_toggle()
+
+
+class PickChannels(ModalScreen[list[str] | None]):
+    """Tick channels (space; `a` all or none), enter confirms, esc cancels.
+
+    Dismisses with the ticked names in the order of `channels`, or None on esc.
+    Enter with nothing ticked keeps the dialog open and says what to do.
+    """
+
+    DEFAULT_CSS = DIALOG_CSS.format(name="PickChannels") + """
+    PickChannels #channels { height: auto; max-height: 16; }
+    """
     BINDINGS = [Binding("escape", "cancel", "cancel"),
                 Binding("enter", "confirm", "confirm", priority=True)]
 
@@ -104,11 +182,27 @@ class PickChannels(ModalScreen[list[str] | None]):
     def compose(self) -> ComposeResult:
         with Vertical():
             yield Label(self.question)
-            yield SelectionList[str](*[(c, c) for c in self.channels], id="channels")
-            yield Static("space ticks a channel, enter copies, esc cancels", classes="hint")
+            yield TickList(self.channels, id="channels")
+            yield Static(self._count_text([]), id="ticked-count")
+            yield Static("", classes="error", id="pick-error")
+            yield Static("space ticks or unticks, a ticks all or none, enter confirms, "
+                         "esc cancels", classes="hint")
+
+    def _count_text(self, ticked: list[str]) -> str:
+        return f"{len(ticked)} of {len(self.channels)} ticked"
+
+    def on_tick_list_changed(self, event: TickList.Changed) -> None:
+        event.stop()
+        self.query_one("#ticked-count", Static).update(self._count_text(event.ticked))
+        if event.ticked:
+            self.query_one("#pick-error", Static).update("")
 
     def action_confirm(self) -> None:
-        self.dismiss(list(self.query_one("#channels", SelectionList).selected))
+        ticked = self.query_one("#channels", TickList).ticked
+        if not ticked:
+            self.query_one("#pick-error", Static).update(NONE_TICKED)
+            return
+        self.dismiss(ticked)
 
     def action_cancel(self) -> None:
         self.dismiss(None)
