@@ -68,7 +68,7 @@ class History:
             self._t[:keep] = self._t[self._used - keep:self._used]
             self._v[:keep] = self._v[self._used - keep:self._used]
             self._used = keep
-            self.start = self.end - keep
+            self.start = max(self.start, self.end - keep)   # samples dropped stay dropped
         lo, hi = self._used, self._used + n
         self._t[lo:hi] = t_host
         self._v[lo:hi, :self.channels] = raw
@@ -77,6 +77,12 @@ class History:
         self.end += n
         if self.end - self.start > self.capacity:
             self.start = self.end - self.capacity
+
+    def drop_before(self, t_host: float) -> None:
+        """Forget the held samples older than `t_host` (s); later appends go on as before."""
+        times, _ = self.slice(self.start, self.end)
+        if len(times) and times[0] < t_host:
+            self.start += int(np.searchsorted(times, t_host))
 
     def slice(self, i0: int, i1: int) -> tuple[np.ndarray, np.ndarray]:
         """Views of samples [i0, i1) clipped to what is held: t (m,), values (m, columns)."""

@@ -12,6 +12,12 @@ Keys in the plot window: space freezes/unfreezes, r returns to following the
 newest sample with autoscale, [ and ] halve and double the window, o toggles
 one lane per channel / all in one lane. Mouse wheel zooms, drag pans (this
 stops following until r).
+
+Time axis: a live stream reads seconds before now. A recording being replayed
+reads seconds from its first row: the plot asks the replay source which
+t_host that first row maps to (`recording_clock()`), each frame, since a seek
+or a loop maps it anew; the samples from before such a jump are dropped from
+the plot, as one axis cannot label both sides of it.
 """
 
 from __future__ import annotations
@@ -26,6 +32,9 @@ from monitor.canvas import backend
 from monitor.canvas.history import History
 from monitor.canvas.plotcanvas import PlotCanvas, ViewState
 from monitor.canvas.response_panel import active_designs
+from monitor.canvas.time_axis import TimeAxis
+
+RecordingClock = Callable[[], "tuple[float, float] | None"]
 
 FRAME_S = 1 / 60          # at most this often a new frame
 SPECTRUM_S = 0.25         # the Welch spectrum is recomputed this often
@@ -48,10 +57,18 @@ class LivePlot:
     get_selected_channel: returns the index (schema order) of the channel the
     UI has selected; the spectrum and response panels show that channel.
     window_s: initial rolling window (s); size: window size (width, height) px.
+    recording_clock: for a recording, returns (origin, since) in host t_host
+    seconds: where the recording's first row lies and the first sample under
+    that mapping, or None while unknown; started: the recording's wall-clock
+    start for the caption. By default both come from the pipeline's source
+    when it has `recording_clock` (replay.player.ReplaySource); a live source
+    has none and the axis reads seconds before now.
     """
 
     def __init__(self, pipeline, get_selected_channel: Callable[[], int],
-                 window_s: float = DEFAULT_WINDOW_S, size: tuple[int, int] = (1280, 800)) -> None:
+                 window_s: float = DEFAULT_WINDOW_S, size: tuple[int, int] = (1280, 800),
+                 recording_clock: RecordingClock | None = None,
+                 started: str | None = None) -> None:
         if not window_s > 0:
             raise ValueError(f"window_s = {window_s!r} must be a positive number of seconds")
         self.pipeline = pipeline
@@ -69,6 +86,15 @@ class LivePlot:
         self._last_frame = 0.0
         self._last_spectrum = 0.0
         self._closing = False
+        source = getattr(pipeline, "source", None)
+        if recording_clock is None:
+            recording_clock = getattr(source, "recording_clock", None)
+            if started is None and recording_clock is not None:
+                header = getattr(getattr(source, "recording", None), "header", None)
+                started = getattr(header, "started", None)
+        self.recording_clock = recording_clock
+        self.started = started
+        self._since: float | None = None    # first t_host of the recording's current mapping
 
     @property
     def is_open(self) -> bool:
@@ -232,6 +258,7 @@ class LivePlot:
         history = self._history_for(ring, rate)
         if not state.frozen:
             history.pull(ring)
+        plot.time_axis = self._time_axis(history)
         if plot.time.moved_by_user():
             state.following = False
         plot.show_traces(history, state)
@@ -247,9 +274,25 @@ class LivePlot:
         plot.readout = plot.cursor_text(history, *state.cursor) if state.cursor else ""
         mode = ("frozen" if state.frozen else "following" if state.following
                 else "zoomed (r follows)")
+        if plot.time_axis.is_recording:
+            mode += ", recording time"
         plot.status = (f"{rate:.4g} Hz   window {state.window_s:.3g} s   {mode}   "
                        "keys: space freeze, r follow, [ ] window, o overlay")
         plot.decorate(selected, state.cursor)
+
+    def _time_axis(self, history: History) -> TimeAxis:
+        """The axis for this frame; after a seek or loop, drop the samples from before it."""
+        clock = self.recording_clock() if self.recording_clock is not None else None
+        if clock is None:
+            return TimeAxis()
+        origin, since = float(clock[0]), float(clock[1])
+        if self._since != since:
+            self._since = since
+            self.state.following = True
+            if self._plot is not None:
+                self._plot.time.restart_autoscale()
+        history.drop_before(since)
+        return TimeAxis(origin=origin, started=self.started)
 
     def _history_for(self, ring, rate: float) -> History:
         """The plot's history, (re)made when the window outgrows it or the ring changed."""

@@ -2,8 +2,9 @@
 
 Panels add what they need each frame; `flush` hands the visuals new data
 only when something changed, so a still frame re-uploads nothing. All grid
-lines are one visual, all markers one, and labels one per alignment, which
-keeps the draw-call count (and so the software renderer's cost) low.
+lines are one visual, all markers one, everything drawn over the data (the legend's ground and line
+keys) one, and labels one per alignment, which keeps the draw-call count (and
+so the software renderer's cost) low.
 """
 
 from __future__ import annotations
@@ -42,6 +43,11 @@ class Marks:
                                          method="gl", parent=scene)
         flat_2d(self._mark_visual)
         self._mark_visual.order = -1  # under the data, over the grid
+        self._over_visual = visuals.Line(pos=np.zeros((2, 2), np.float32), connect="segments",
+                                         color=np.zeros((2, 4), np.float32), width=1,
+                                         method="gl", parent=scene)
+        flat_2d(self._over_visual)
+        self._over_visual.order = 2   # over the data lines, under the labels
         self._texts = {}
         fonts = FontManager()   # one glyph atlas for the three label visuals of this canvas
         for anchor in _ANCHORS:
@@ -58,6 +64,8 @@ class Marks:
         self._grid: list[tuple[float, float, float, float]] = []
         self._marks: list[tuple[float, float, float, float]] = []
         self._mark_colours: list[palette.Color] = []
+        self._over: list[tuple[float, float, float, float]] = []
+        self._over_colours: list[palette.Color] = []
         self._labels: dict[str, list[tuple[str, float, float, palette.Color]]] = {
             a: [] for a in _ANCHORS}
 
@@ -76,6 +84,16 @@ class Marks:
         self._marks.append(_snap(x0, y0, x1, y1))
         self._mark_colours.append(colour)
 
+    def over(self, x0: float, y0: float, x1: float, y1: float, colour: palette.Color) -> None:
+        """A 1 px segment drawn over the data (legend keys), in call order."""
+        self._over.append(_snap(x0, y0, x1, y1))
+        self._over_colours.append(colour)
+
+    def fill(self, rect, colour: palette.Color) -> None:
+        """Cover a layout.Rect with `colour` over the data (one 1 px row per pixel row)."""
+        for y in range(rect.y, rect.y + rect.h):
+            self.over(rect.x, y, rect.x + rect.w, y, colour)
+
     def label(self, text: str, x: float, y: float, anchor: str = "center",
               colour: palette.Color = palette.TEXT) -> None:
         """Text centred vertically at y; anchor says which end of it sits at x."""
@@ -85,6 +103,7 @@ class Marks:
         """Give the visuals this frame's marks where they differ from the last frame's."""
         self._set_segments("grid", self._grid_visual, self._grid, None)
         self._set_segments("marks", self._mark_visual, self._marks, self._mark_colours)
+        self._set_segments("over", self._over_visual, self._over, self._over_colours)
         for anchor, items in self._labels.items():
             if self._shown.get(anchor) == items:
                 continue
@@ -97,6 +116,17 @@ class Marks:
             text.text = [i[0] for i in items]
             text.pos = np.array([(i[1], i[2]) for i in items], np.float32)
             text.color = np.array([i[3] for i in items], np.float32)
+
+    def drawn_labels(self) -> list[tuple[str, float, float, str]]:
+        """(text, x, y, anchor) of every label the text visuals hold now, in canvas pixels."""
+        out = []
+        for anchor, visual in self._texts.items():
+            if not visual.visible:
+                continue
+            texts = [visual.text] if isinstance(visual.text, str) else list(visual.text)
+            pos = np.asarray(visual.pos, float).reshape(-1, 2)
+            out += [(t, float(p[0]), float(p[1]), anchor) for t, p in zip(texts, pos, strict=True)]
+        return out
 
     def _set_segments(self, key, visual, segments, colours) -> None:
         if self._shown.get(key) == (segments, colours):

@@ -16,9 +16,11 @@ from monitor.canvas import palette
 from monitor.canvas.decimate import BucketCache, pack_columns, pack_every, samples_per_bucket
 from monitor.canvas.history import History
 from monitor.canvas.layout import MIN_SIZE, compute_layout
+from monitor.canvas.legend import text_px
 from monitor.canvas.marks import Marks
 from monitor.canvas.response_panel import ResponsePanel, chain_curves, stage_markers
 from monitor.canvas.spectrum_panel import MAX_SEGMENTS, NPERSEG, SpectrumPanel, welch_db
+from monitor.canvas.time_axis import TimeAxis
 from monitor.canvas.time_panel import TimePanel
 
 SPECTRUM_SAMPLES = (MAX_SEGMENTS + 1) * NPERSEG // 2
@@ -49,11 +51,15 @@ class PlotCanvas:
     """Three panels for `channels` (names) with `units`, sampled at `rate_hz`, on a SceneCanvas.
 
     size: (width, height) px. show: open as a window (needs the window backend).
+    time_axis: what the time ticks count; the default is a live stream (seconds
+    before now); give TimeAxis(origin=t_first, started=...) for a recording.
+    It may be replaced between frames (`plot.time_axis = ...`).
     """
 
     def __init__(self, channels: Sequence[str], units: Sequence[str], rate_hz: float,
                  size: tuple[int, int] = (1280, 800), show: bool = False,
-                 title: str = "tunetrace", overlay: bool = False, app=None) -> None:
+                 title: str = "tunetrace", overlay: bool = False, app=None,
+                 time_axis: TimeAxis | None = None) -> None:
         from vispy import scene
 
         if not rate_hz > 0:
@@ -62,6 +68,7 @@ class PlotCanvas:
         self.units = tuple(units) + ("",) * (len(self.channels) - len(units))
         self.rate_hz = float(rate_hz)
         self.title = title
+        self._time_axis = time_axis if time_axis is not None else TimeAxis()
         self.canvas = scene.SceneCanvas(size=size, show=show, title=title, keys=None,
                                         bgcolor=palette.PANEL, app=app, resizable=show)
         # vispy would log an exception in a draw or input handler and carry on; let it
@@ -94,7 +101,7 @@ class PlotCanvas:
         self.layout = compute_layout(self.size, 1 if overlay else len(self.channels))
         self.overlay = overlay
         self.time = TimePanel(self.canvas.scene, self.layout.lanes, self.channels, self.units,
-                              overlay=overlay)
+                              overlay=overlay, time_axis=self._time_axis)
         self.spectrum = SpectrumPanel(self.canvas.scene, self.layout.spectrum, self.rate_hz)
         self.response = ResponsePanel(self.canvas.scene, self.layout.magnitude,
                                       self.layout.phase, self.rate_hz)
@@ -103,6 +110,16 @@ class PlotCanvas:
         self.status = ""
         self.readout = ""
         self.window: tuple[int, int] = (0, 0)   # absolute sample indices shown
+
+    @property
+    def time_axis(self) -> TimeAxis:
+        """What the time ticks count (live: seconds before now; recording: from its start)."""
+        return self._time_axis
+
+    @time_axis.setter
+    def time_axis(self, axis: TimeAxis) -> None:
+        self._time_axis = axis
+        self.time.time_axis = axis
 
     def areas(self) -> list:
         """Every PlotArea of the panels."""
@@ -146,6 +163,8 @@ class PlotCanvas:
         origin = history.origin or 0.0
         t_newest = float(history.slice(history.end - 1, history.end)[0][0]) - origin
         self.time.newest_x = t_newest
+        if self._time_axis.is_recording:
+            self.time.origin_x = self._time_axis.origin - origin
         if state.following:
             x0, x1 = t_newest - state.window_s, t_newest
         else:
@@ -207,8 +226,8 @@ class PlotCanvas:
         if not len(t):
             return ""
         k = len(self.channels)
-        age = (t[0] - (history.origin or 0.0)) - self.time.newest_x
-        parts = [f"t {age:+.3f} s"]
+        seconds = self.time.seconds_at(t[0] - (history.origin or 0.0))
+        parts = [f"t {seconds:.3f} s" if self._time_axis.is_recording else f"t {seconds:+.3f} s"]
         for c in self.time.channels_in(lane):
             unit = f" {self.units[c]}" if self.units[c] else ""
             parts.append(f"{self.channels[c]} raw {values[0, c]:.5g}{unit} "
@@ -227,13 +246,19 @@ class PlotCanvas:
         self.response.decorate(marks)
         header = self.layout.header
         marks.label(self.title, 8, header.h / 2, anchor="left", colour=palette.TEXT)
+        readout_x = header.w / 2 - 120
+        if self._time_axis.is_recording:   # live ticks say "now"; a recording's say from when
+            caption_x = 8 + text_px(self.title) + 24
+            caption = self._time_axis.caption()
+            marks.label(caption, caption_x, header.h / 2, anchor="left", colour=palette.TEXT)
+            readout_x = max(readout_x, caption_x + text_px(caption) + 24)
         if self.status:
             marks.label(self.status, header.w - 8, header.h / 2, anchor="right")
         if cursor is not None and self.time.lane_at(*cursor) is not None:
             top, bottom = self.layout.lanes[0], self.layout.lanes[-1]
             marks.mark(cursor[0], top.y, cursor[0], bottom.y + bottom.h, palette.READOUT)
             if self.readout:
-                marks.label(self.readout, header.w / 2 - 120, header.h / 2, anchor="left",
+                marks.label(self.readout, readout_x, header.h / 2, anchor="left",
                             colour=palette.READOUT)
         marks.flush()
 

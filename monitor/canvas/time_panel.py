@@ -1,9 +1,11 @@
 """The time panel: raw and filtered traces, one lane per channel or all in one overlay lane.
 
-x is seconds since the first sample seen (t_host - origin); tick labels read
-as seconds before the newest sample, so a following view shows still labels
-("-8 ... 0 s") while the traces roll. Lanes share x (linked cameras) and
-autoscale y each on its own.
+x is seconds since the first sample seen (t_host - origin). For a live
+stream the tick labels read as seconds before the newest sample, so a
+following view shows still labels ("-8 s ... now") while the traces roll; for
+a recording they read seconds from its first row (time_axis.TimeAxis). Lanes
+share x (linked cameras) and autoscale y each on its own. Each lane has a
+legend of its line styles at its top right (legend.draw_legend).
 """
 
 from __future__ import annotations
@@ -15,7 +17,9 @@ import numpy as np
 from monitor.canvas import palette
 from monitor.canvas.area import PlotArea
 from monitor.canvas.layout import Rect
+from monitor.canvas.legend import draw_legend
 from monitor.canvas.marks import Marks
+from monitor.canvas.time_axis import TimeAxis
 
 PAD = 0.08     # fraction of a lane's value span left free above and below the traces
 SHRINK = 0.6   # autoscale shrinks the range once the data fills less than this of it
@@ -44,11 +48,13 @@ def autoscale(lo: float, hi: float,
 class TimePanel:
     """Lanes of raw (faint, thin) and filtered (strong) traces.
 
-    channels/units: names and unit strings in column order; overlay: one lane for all.
+    channels/units: names and unit strings in column order; overlay: one lane for all;
+    time_axis: what the x ticks count (default: a live stream, seconds before now).
     """
 
     def __init__(self, scene, lane_rects: Sequence[Rect], channels: Sequence[str],
-                 units: Sequence[str], overlay: bool = False, interactive: bool = True) -> None:
+                 units: Sequence[str], overlay: bool = False, interactive: bool = True,
+                 time_axis: TimeAxis | None = None) -> None:
         self.channels = tuple(channels)
         self.units = tuple(units) + ("",) * (len(channels) - len(units))
         self.overlay = overlay
@@ -64,6 +70,9 @@ class TimePanel:
             self.filtered_lines.append(area.line(palette.filtered_colour(k),
                                                  palette.FILTERED_WIDTH))
         self.newest_x = 0.0
+        self.time_axis = time_axis if time_axis is not None else TimeAxis()
+        self.origin_x = 0.0    # x of t_host == time_axis.origin (recordings; set with the data)
+        self.legend_rects: list[Rect] = []   # where each lane's legend was drawn last
         self._autoscaled: list[tuple[float, float] | None] = [None] * len(self.lanes)
 
     def restart_autoscale(self) -> None:
@@ -121,7 +130,11 @@ class TimePanel:
             units = {self.units[k] for k in ks}
             area.y_axis(marks, max_ticks=3 if len(self.lanes) > 4 else 5,
                         unit=units.pop() if len(units) == 1 else "")
-            area.x_axis_linear(marks, offset=self.newest_x, labels=last, unit="s", zero="now")
+            if self.time_axis.is_recording:
+                area.x_axis_linear(marks, offset=self.origin_x, labels=last, unit="s")
+            else:
+                area.x_axis_linear(marks, offset=self.newest_x, labels=last, unit="s",
+                                   zero="now")
             r = area.rect
             for i, k in enumerate(ks):
                 name = self.channels[k] + (f" [{self.units[k]}]" if self.units[k] else "")
@@ -129,3 +142,13 @@ class TimePanel:
                     name = "> " + name
                 marks.label(name, r.x + 4 + 110 * i, r.y + 7, anchor="left",
                             colour=palette.filtered_colour(k))
+        self.legend_rects = []
+        for lane, area in enumerate(self.lanes):
+            ks = self.channels_in(lane)
+            names = [self.channels[k] for k in ks] if len(ks) > 1 else None
+            self.legend_rects.append(draw_legend(marks, area.rect, ks, names))
+
+    def seconds_at(self, x: float) -> float:
+        """What the time axis reads at lane x: seconds of the recording, or (live) seconds
+        relative to the newest sample (negative before it)."""
+        return x - (self.origin_x if self.time_axis.is_recording else self.newest_x)

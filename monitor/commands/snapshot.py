@@ -3,7 +3,9 @@
 Renders the plot's three panels (time lanes, spectrum, response) of a stretch
 of a recording to a PNG, headless through EGL (Mesa's software renderer
 works; no display needed). The chain runs from the start of the file so its
-state at --start is what a replay would have.
+state at --start is what a replay would have. The time axis reads seconds from
+the recording's first row (so a window from --start 4 is labelled 4 s on), and
+the header's start time, when the file has one, is named above the plot.
 """
 
 from __future__ import annotations
@@ -146,10 +148,13 @@ def run(args: argparse.Namespace) -> int:
         raise UserError(f"{args.file} has fewer than 2 samples from --start {args.start:g} s "
                         "on; choose an earlier --start.")
     designs = [active_designs(chain, name) for name in channels]
-    return _render(args, data, channels, units, rate_hz, designs, size, selected)
+    from monitor.canvas.time_axis import TimeAxis
+
+    axis = TimeAxis(origin=float(recording.t_first), started=recording.header.started)
+    return _render(args, data, channels, units, rate_hz, designs, size, selected, axis)
 
 
-def _render(args, data, channels, units, rate_hz, designs, size, selected) -> int:
+def _render(args, data, channels, units, rate_hz, designs, size, selected, axis) -> int:
     from vispy.io import write_png
 
     from monitor.canvas.backend import BackendUnavailable
@@ -159,7 +164,7 @@ def _render(args, data, channels, units, rate_hz, designs, size, selected) -> in
     title = f"tunetrace snapshot  {os.path.basename(args.file)}  from {args.start:g} s"
     try:
         image = render_snapshot(t_host, raw, filtered, channels, units, rate_hz, designs,
-                                size=size, selected=selected, title=title)
+                                size=size, selected=selected, title=title, time_axis=axis)
     except BackendUnavailable as exc:
         raise UserError(str(exc).rstrip(".") + ".", exit_code=1) from None
     try:
