@@ -7,7 +7,7 @@ from rich.text import Text
 
 from monitor.stats import MEASURED_HELP, WHITE_HELP
 from monitor.tui.dialogs import ShowText
-from monitor.tui.keys import ACTIONS, CHANNEL_KEYS, KEY_LABELS
+from monitor.tui.keys import ACTIONS, CHANNEL_KEYS, KEY_LABELS, KEY_PATH
 
 CAUTION = (
     "Caution: a filter adds lag and can hide faults. If the filtered signal will feed a "
@@ -30,12 +30,11 @@ def help_table() -> Table:
         keys = " ".join(KEY_LABELS.get(k, k) for k in action.keys.split(","))
         table.add_row(keys, action.help)
     table.add_row("", "")
-    table.add_row("", Text("Moving around", style="bold underline"))
+    table.add_row("", Text("The key path", style="bold underline"))
+    for key, sentence in KEY_PATH:
+        table.add_row(key, sentence)
     table.add_row(f"{CHANNEL_KEYS[0]}..{CHANNEL_KEYS[-1]}", "Select channel 1 to 9.")
-    table.add_row("up down", "Move in the channel table or the stage list.")
-    table.add_row("tab", "Next panel or field; shift+tab goes back.")
-    table.add_row("enter", "In a parameter field: apply the change to the running chain.")
-    table.add_row("ctrl+p", "Command palette: every action above by name.")
+    table.add_row("ctrl+p", "Command palette: every action above by name, once.")
     table.add_row("", "")
     table.add_row("", Text("Figures in the channel table", style="bold underline"))
     table.add_row("NR dB", MEASURED_HELP[0].upper() + MEASURED_HELP[1:]

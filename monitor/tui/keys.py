@@ -98,3 +98,16 @@ ACTIONS: tuple[KeyAction, ...] = (
 )
 
 CHANNEL_KEYS = tuple(str(i) for i in range(1, 10))
+
+# The key path: the same moves everywhere (help screen, README; monitor.tui.app.navigate).
+KEY_PATH: tuple[tuple[str, str], ...] = (
+    ("enter", "On the channel table: go into the selected channel's chain (the stage list)."),
+    ("enter", "On a stage: go into its first parameter field."),
+    ("tab", "Next field or panel in screen order (table, stage list, each field, then round "
+            "again); shift+tab goes back."),
+    ("enter", "In a field: apply the stage to the running chain (refused: said beside the "
+              "field and in the status, the running chain goes on)."),
+    ("esc", "Back one level: field -> stage list -> channel table; in a dialog: cancel."),
+    ("0-9 . -", "In a field these are text; elsewhere 1..9 select a channel."),
+    ("up down", "Move in the channel table or the stage list (the marker shows the stage)."),
+)

@@ -104,9 +104,9 @@ def status_lines(status: Any, ui: UiState) -> tuple[str, str]:
     if ui.frozen:
         flags.append("TRACE FROZEN")
     flags.append("edits: this channel" if ui.scope == "channel" else "edits: all sharing")
-    if ui.focus:
-        flags.append(f"keys to: {ui.focus}")
     parts = [notice] if notice else []
+    if ui.focus:                  # before the rest: a narrow terminal cuts the line's end
+        parts.append(f"keys to: {ui.focus}")
     parts.append(recording_text(status, ui))
     if status.chain_error:
         parts.append(f"chain: {status.chain_error}")

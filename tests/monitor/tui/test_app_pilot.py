@@ -320,6 +320,19 @@ def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline
             assert "lag is computed" in str(app.screen.query_one("Label").render())
             await press(pilot, "escape")
             assert await until(pilot, lambda: not isinstance(app.screen, AskValue))
+            # the palette opened empty lists our actions once, and none of textual's own
+            await press(pilot, "ctrl+p")
+            assert await until(pilot, lambda: CommandPalette.is_open(app))
+            listed = app.screen.query_one(CommandList)
+            assert await until(pilot, lambda: listed.option_count == len(ACTIONS))
+            await pilot.pause(0.3)                  # a slower provider would add its entries
+            labels = [str(listed.get_option_at_index(i).prompt)
+                      for i in range(listed.option_count)]
+            assert len(labels) == len(set(labels)) == len(ACTIONS)
+            for builtin in ("Theme", "Maximize", "Screenshot", "Keys"):
+                assert not any(label.startswith(builtin) for label in labels)
+            await press(pilot, "escape")
+            assert await until(pilot, lambda: not CommandPalette.is_open(app))
             await press(pilot, "q")
 
     run(scenario())
