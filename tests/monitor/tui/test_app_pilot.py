@@ -280,6 +280,19 @@ def test_malformed_chain_file_is_refused_and_a_saved_one_loads(start_pipeline, t
             other.write_text('[[stage]]\nkind = "ema"\nalpha = 0.25\n')
             await answer(pilot, app, "l", str(other))
             assert await until(pilot, lambda: kinds_on(pipeline, "vib") == ["ema"])
+            # the load is an edit like any other: u takes it back, U makes it again
+            await press(pilot, "u")
+            assert await until(pilot, lambda: pipeline.chain.spec == before.spec)
+            assert f"undone: loaded the chain from {other}" in app.ui.notice
+            await press(pilot, "U")
+            assert await until(pilot, lambda: kinds_on(pipeline, "vib") == ["ema"])
+            await press(pilot, "U")
+            assert await until(pilot, lambda: app.ui.notice.startswith("nothing to redo"))
+            # keys typed while the save dialog opens wait for it: one burst, name and enter
+            burst = tmp_path / "burst.toml"
+            await press(pilot, "s", "ctrl+u", *str(burst), "enter")
+            assert await until(pilot, lambda: burst.exists())
+            assert parse_chain(burst.read_text()).stages[0].kind == "ema"
             await press(pilot, "q")
 
     run(scenario())
