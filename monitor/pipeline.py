@@ -11,6 +11,13 @@ ring, so the view holds still. A source with pause()/resume() (replay) is
 paused itself instead. Seek and SetSpeed go to sources that offer seek(s) and
 set_speed(x).
 
+End of a replay: when a source that can seek ends, the reader thread stops (status
+running = False, as for any ended source, so headless callers finish) but leaves the
+source and the sink open: it is "at rest". A command submitted at rest starts a new
+reader thread that applies it, so a Seek plays on from there (the recording, if any,
+goes on with the rows after the jump) and SetSpeed, chain edits or recording
+commands still take effect; stop() closes what rest left open.
+
 Rate moves: when the source's (measured, not declared) rate later moves by more
 than RATE_MOVE_TOLERANCE from the rate the chain was designed at, the chain is
 redesigned at the new rate and continues bumplessly (ChainSet.continue_from);
@@ -220,6 +227,7 @@ class Pipeline:
         self._thread: threading.Thread | None = None
         self._lock = threading.Lock()
         self._commands_dropped = 0
+        self._at_rest = False               # a seekable source ended; see the module docstring
         self._work = PipelineStatus(source_description=self._describe_source(),
                                     recording=_sink_name(sink))
         self._published = dataclasses.replace(self._work)
@@ -239,15 +247,23 @@ class Pipeline:
     def stop(self, timeout: float = 2.0) -> None:
         """Stop the reader thread and wait up to `timeout` s for it; closes source and sink."""
         self._stop.set()
-        if self._thread is None:
+        with self._lock:                    # submit() may have just started a new thread
+            thread = self._thread
+        if thread is None:
             _quietly(self.source.close)
             if self._sink is not None:
                 _quietly(self._sink.close)
             return
-        self._thread.join(timeout)
-        if self._thread.is_alive():        # stuck in a read: closing the source frees it
+        thread.join(timeout)
+        if thread.is_alive():              # stuck in a read: closing the source frees it
             _quietly(self.source.close)
-            self._thread.join(READ_TIMEOUT_S * 10)
+            thread.join(READ_TIMEOUT_S * 10)
+        with self._lock:
+            at_rest, self._at_rest = self._at_rest, False
+        if at_rest:                        # the thread ended at rest: nothing else touches these
+            _quietly(self.source.close)
+            self._close_sink()
+            self._publish()
 
     def submit(self, command: Any) -> bool:
         """Queue a command for the reader thread; False (and counted) if the queue is full."""
@@ -258,6 +274,13 @@ class Pipeline:
                 self._commands_dropped += 1
                 self._published.commands_dropped = self._commands_dropped
             return False
+        with self._lock:
+            if self._at_rest and not self._stop.is_set():
+                self._at_rest = False      # wake: a new reader thread applies the command
+                rested = self._thread
+                self._thread = threading.Thread(target=self._wake, args=(rested,),
+                                                name="tunetrace-reader", daemon=True)
+                self._thread.start()
         return True
 
     def status(self) -> PipelineStatus:
@@ -285,7 +308,24 @@ class Pipeline:
 
     # -- the reader thread ---------------------------------------------------------
 
+    def _wake(self, rested: threading.Thread) -> None:
+        """The reader thread again after rest, once the one that rested has finished."""
+        rested.join()
+        self._work.running = True
+        self._run()
+
+    def _rest_at_end(self) -> bool:
+        """True when no command waits: the thread then stops at rest, and submit() starts
+        a new one for the next command. A command queued before this check is applied
+        by this thread first (the lock orders the two)."""
+        with self._lock:
+            if not self._commands.empty():
+                return False
+            self._at_rest = True
+            return True
+
     def _run(self) -> None:
+        at_rest = False
         try:
             while not self._stop.is_set():
                 self._apply_commands()
@@ -300,12 +340,17 @@ class Pipeline:
                     self._handle(block)
                 self._publish()
                 if self.source.state == "ended":
-                    break
+                    if not callable(getattr(self.source, "seek", None)):
+                        break              # a live source that ended: closed below
+                    at_rest = self._rest_at_end()
+                    if at_rest:
+                        break              # else a command waits: apply it and go on
         except Exception as exc:  # shown in status; the process keeps running
             self._work.error = f"reader stopped: {type(exc).__name__}: {exc}"
         finally:
-            _quietly(self.source.close)
-            self._close_sink()
+            if not at_rest:                # at rest a seek may continue: stop() closes them
+                _quietly(self.source.close)
+                self._close_sink()
             self._work.running = False
             self._publish()
 
@@ -452,7 +497,10 @@ class Pipeline:
                 action = name.replace("_", " ")
                 work.notice = f"{self.source.describe()} is live: it cannot {action}"
             else:
-                method(arg)
+                try:
+                    method(arg)
+                except ValueError as exc:  # e.g. a seek past the end: the source's sentence
+                    work.notice = str(exc)
         else:
             work.notice = f"unknown command {command!r} ignored"
 

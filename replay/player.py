@@ -44,6 +44,9 @@ class ReplaySource:
     at the first sample, and it keeps increasing across loops and backward seeks.
     Dead time at a `# gap:` line is not waited out. Raises RecordingError for a
     file that cannot be used.
+
+    After the last row the state is "ended"; seek() plays on from any time of the
+    recording (state "connected" again) and set_speed() works in every state.
     """
 
     def __init__(self, path: str | os.PathLike[str], speed: float | None = 1.0,
@@ -70,7 +73,9 @@ class ReplaySource:
         self._step = 1.0 / rate[0] if rate else 1e-3
         self._offset: float | None = None
         self._continue_after: float | None = None   # emitted t to continue from after a jump
-        self._last_file_t = self.recording.t_first
+        self._last_emitted: float | None = None     # emitted t of the newest row handed out
+        self._position_t = self.recording.t_first   # file t of the newest row (or seek target)
+        self._end_s: float | None = None            # the last row's position, once reached
         self._events = None
         self._restart(self.start_s)
 
@@ -148,24 +153,37 @@ class ReplaySource:
         return self._speed
 
     def seek(self, seconds: float) -> None:
-        """Continue playback `seconds` after the first row of the recording."""
-        seconds = max(0.0, float(seconds))
+        """Continue playback at the first row `seconds` (s) or more after the first row of
+        the recording, whether playing, paused or ended (then it plays on; paused stays
+        paused). Negative seconds mean 0. A time past the last row raises ValueError with
+        a sentence giving the recording's length, and playback stays as it was."""
+        seconds = float(seconds)
+        if not math.isfinite(seconds):
+            raise ValueError(f"cannot seek to {seconds!r}; give seconds from the start of "
+                             "the recording")
+        seconds = max(0.0, seconds)
+        events, first_t = self._events_from(seconds)
+        if events is None:
+            raise ValueError(self._past_end(seconds))
         self._gaps.append(f"replay jumped to {seconds:g} s")
         self._jump()
-        self._restart(seconds)
+        self._restart(seconds, events)
+        self._position_t = first_t
         self.state = "connected"
 
     @property
     def position_s(self) -> float:
-        """Seconds after the first row of the newest row handed out."""
-        return self._last_file_t - self.recording.t_first
+        """Seconds after the first row of the newest row handed out; after a seek, of the
+        row playback goes on from; at the end, the recording's duration."""
+        return self._position_t - self.recording.t_first
 
     # -- internals --------------------------------------------------------------------
 
-    def _restart(self, start_s: float) -> None:
+    def _restart(self, start_s: float, events=None) -> None:
+        """Play on from start_s s: from `events` when seek() already opened them there."""
         if self._events is not None:
             self._events.close()
-        self._events = self.recording.events(start_s)
+        self._events = events if events is not None else self.recording.events(start_s)
         self._block: Block | None = None
         self._pos = 0
         self._clock: tuple[float, float] | None = None
@@ -173,8 +191,29 @@ class ReplaySource:
 
     def _jump(self) -> None:
         """The next row continues the emitted time one sample after the last one."""
-        if self._offset is not None:
-            self._continue_after = self._last_file_t + self._offset
+        if self._last_emitted is not None:
+            self._continue_after = self._last_emitted
+
+    def _events_from(self, start_s: float):
+        """(events from start_s s, file t of their first row), or (None, None) when no row
+        lies there. The file is read up to that row, as the next read_block would."""
+        events = self.recording.events(start_s)
+        held = []
+        for item in events:
+            held.append(item)
+            if isinstance(item, Block):
+                return _closing_chain(held, events), float(item.t_host[0])
+        events.close()
+        return None, None
+
+    def _past_end(self, seconds: float) -> str:
+        end = self.duration_s if self.duration_s is not None else self._end_s
+        name = self.recording.path
+        if end is None:
+            return (f"{seconds:g} s is past the last row of {name}; give an earlier time "
+                    "(playback stays where it was).")
+        return (f"{seconds:g} s is past the end of {name}, which lasts {end:.3f} s; give a "
+                f"time from 0 to {end:.3f} s (playback stays where it was).")
 
     def _current(self) -> Block | None:
         """The block holding the next row, reading on through gaps and loops; None at the end."""
@@ -188,6 +227,7 @@ class ReplaySource:
                     self._restart(self.start_s)
                     continue
                 self.state = "ended"
+                self._end_s = self.position_s
                 return None
             if isinstance(item, Gap):
                 self._gaps.append(item.reason)
@@ -208,7 +248,17 @@ class ReplaySource:
         elif self._continue_after is not None:
             self._offset = self._continue_after + self._step - float(t_file[0])
         self._continue_after = None
-        self._last_file_t = float(t_file[-1])
+        self._position_t = float(t_file[-1])
+        self._last_emitted = float(t_file[-1]) + self._offset
         return Block(t_file + self._offset, b.values[start:end],
                      None if b.t_dev is None else b.t_dev[start:end],
                      None if b.counter is None else b.counter[start:end])
+
+
+def _closing_chain(held: list, events):
+    """The held items, then the rest of `events`; closing it closes `events`."""
+    try:
+        yield from held
+        yield from events
+    finally:
+        events.close()
