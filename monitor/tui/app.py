@@ -97,7 +97,8 @@ class TunetraceApp(KeyOrder, ChainActions, FileActions, PlotActions, App[int]):
     def compose(self) -> ComposeResult:
         # kept by reference: the timers use them, also while the screen is torn down
         self.table, self.trace, self.status_bar = (
-            ChannelTable(id="channels"), TraceView(id="trace"), StatusBar(id="status"))
+            ChannelTable(id="channels", lag_hz=self.ui.analysis_hz), TraceView(id="trace"),
+            StatusBar(id="status"))
         yield self.table
         with Horizontal(id="middle"):
             yield self.trace

@@ -163,6 +163,7 @@ class FileActions:
         if not text:
             return
         self.ui.analysis_hz = float(text)
+        self.table.set_lag_hz(self.ui.analysis_hz)
         self.show_chain()
         self.say(f"lag now computed at {self.ui.analysis_hz:g} Hz")
 

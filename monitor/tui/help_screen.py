@@ -40,7 +40,7 @@ def help_table() -> Table:
     table.add_row("NR dB", MEASURED_HELP[0].upper() + MEASURED_HELP[1:]
                   + "; counted from the last change of chain.")
     table.add_row("white dB", WHITE_HELP[0].upper() + WHITE_HELP[1:] + ".")
-    table.add_row("lag ms", "Group delay of the chain at the lag frequency (g).")
+    table.add_row("lag@f ms", "Group delay of the chain at the lag frequency (g).")
     table.add_row("", "")
     table.add_row("", Text(CAUTION, style="italic #e0c060"))
     return table

@@ -310,7 +310,7 @@ def test_help_lists_every_key_and_the_palette_offers_every_action(start_pipeline
             for action in ACTIONS:
                 assert action.help in console_text, action.action
             flat = " ".join(console_text.split())
-            for column in ("NR dB", "white dB", "lag ms"):        # the table's figures explained
+            for column in ("NR dB", "white dB", "lag@f ms"):        # the table's figures explained
                 assert column in flat
             assert "-10 log10(sum h^2)" in flat and "settled after a step" in flat
             await press(pilot, "escape")
@@ -378,6 +378,15 @@ def test_view_hold_trace_freeze_window_and_analysis_frequency(start_pipeline):
             await press(pilot, "enter")
             assert await until(pilot, lambda: app.ui.analysis_hz == 20.0)
             assert app.session.lag_ms("load", 20.0) != pytest.approx(lag_1hz)
+            assert "lag@20Hz" in str(app.table.columns["lag_ms"].label)   # says where
+            # a longer window than the history holds: the axis is what is drawn, the
+            # samples over the rate, never more than the window
+            await press(pilot, "plus", "plus", "plus")
+            assert await until(pilot, lambda: app.ui.window_s == 20.0)   # 2 -> 5 -> 10 -> 20
+            await pilot.pause(0.3)
+            drawn = len(pipeline.ring.latest(int(20.0 * RATE)))
+            assert app.trace._span_s <= 20.0
+            assert app.trace._span_s == pytest.approx((drawn - 1) / RATE, abs=0.5)
             await press(pilot, "t")                                 # live: replay-only key
             assert await until(pilot, lambda: "replaying" in app.ui.notice)
             await press(pilot, "q")
