@@ -267,6 +267,11 @@ class TunetraceApp(KeyOrder, ChainActions, FileActions, PlotActions, App[int]):
         form = self.query_one("#form", ParamForm)
         stages = self.query_one("#stages", StageList)
         in_form = focused is not None and form in focused.ancestors
+        if in_form and form.is_choice(focused) and key in CHANNEL_KEYS:
+            # a field is never left by a digit, also a choice that takes no text
+            self.say(f"{form.field_name(focused)} is a choice: enter opens it, "
+                     "up and down pick, esc goes back")
+            return True
         if key == "enter":
             if focused is self.table:
                 self.focus_now(stages)

@@ -387,6 +387,13 @@ def test_view_hold_trace_freeze_window_and_analysis_frequency(start_pipeline):
             drawn = len(pipeline.ring.latest(int(20.0 * RATE)))
             assert app.trace._span_s <= 20.0
             assert app.trace._span_s == pytest.approx((drawn - 1) / RATE, abs=0.5)
+            # a digit on a choice field of the form stays in the form (no channel change)
+            await highlight_stage(pilot, app, 2)
+            start = app.query_one("#field-start")
+            app.screen.set_focus(start)
+            await press(pilot, "2")
+            assert app.channel == "load" and app.focused is start
+            assert "start is a choice" in app.ui.notice
             await press(pilot, "t")                                 # live: replay-only key
             assert await until(pilot, lambda: "replaying" in app.ui.notice)
             await press(pilot, "q")
