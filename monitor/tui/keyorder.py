@@ -34,7 +34,7 @@ from textual.binding import Binding
 from textual.screen import ModalScreen
 from textual.widgets import Input, Select
 
-HOLD_TIMEOUT_S = 1.0
+HOLD_TIMEOUT_S = 3.0        # a slow machine building a big form still gets its keys
 HOLD_POLL_S = 0.02
 
 
